@@ -97,11 +97,23 @@ class Leg:
 
     @cached_property
     def _lookup(self) -> dict[int, int]:
+        """Encoded charge -> sector index (for vectorised look-ups)."""
         return {int(k): i for i, k in enumerate(encode(self.charge_array))}
+
+    @cached_property
+    def _sector_of(self) -> dict[Charge, int]:
+        return {q: i for i, q in enumerate(self.charges)}
 
     def index(self, charge: Charge) -> int:
         """Sector index of ``charge``, or -1 if the leg has no such sector."""
-        return self._lookup.get(int(encode(np.asarray(charge))), -1)
+        return self._sector_of.get(tuple(charge), -1)
+
+    def __hash__(self) -> int:
+        h = self.__dict__.get("_hash")
+        if h is None:
+            h = hash((self.charges, self.sizes, self.flow))
+            object.__setattr__(self, "_hash", h)
+        return h
 
     def dual(self) -> "Leg":
         """The same sectors with the opposite flow (the leg it contracts with)."""
@@ -194,9 +206,9 @@ def fuse(legs: tuple[Leg, ...], flow: int = 1) -> FusionMap:
     fused_sizes = np.add.reduceat(sizes, starts)
     fused = Leg(tuple(tuple(int(c) for c in row) for row in total[starts]),
                 tuple(int(s) for s in fused_sizes), flow)
-    entries = {}
-    for combo, s, off in zip(map(tuple, combos.tolist()), sector_id.tolist(), offsets.tolist()):
-        entries[combo] = (s, off, tuple(legs[i].sizes[c] for i, c in enumerate(combo)))
+    shapes = np.stack([np.asarray(leg.sizes, dtype=np.int64)[combos[:, i]] for i, leg in enumerate(legs)], axis=1)
+    entries = {combo: (s, off, shape) for combo, s, off, shape in
+               zip(map(tuple, combos.tolist()), sector_id.tolist(), offsets.tolist(), map(tuple, shapes.tolist()))}
     return FusionMap(legs, fused, entries)
 
 

@@ -12,6 +12,7 @@ applies the same operator many times pays for it once.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -34,23 +35,33 @@ class _Part:
 
 @dataclass(frozen=True)
 class _Group:
+    """One GEMM: rows x mid times mid x cols, stored at these offsets of the packed buffers."""
+
     nrow: int
     nmid: int
     ncol: int
-    a_parts: tuple[_Part, ...]
-    b_parts: tuple[_Part, ...]
-    out_parts: tuple[_Part, ...]
+    a_start: int
+    b_start: int
+    c_start: int
 
 
 @dataclass(frozen=True)
 class ContractionPlan:
-    """Everything needed to contract two structures: the result's legs and one GEMM per group."""
+    """Everything needed to contract two structures.
+
+    ``gather_a`` lists, for every entry of the packed A matrices (group after group, C order),
+    its position in A's flat data; likewise ``gather_b``. ``scatter_out`` gives, for every entry
+    of the packed products, its position in the result's flat data. One fancy-index per operand
+    replaces a Python loop over blocks.
+    """
 
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]
-    perm_a: tuple[int, ...]
-    perm_b: tuple[int, ...]
     groups: tuple[_Group, ...]
+    gather_a: np.ndarray | None
+    gather_b: np.ndarray | None
+    scatter_out: np.ndarray | None
+    out_size: int
 
     @property
     def flops(self) -> int:
@@ -76,7 +87,7 @@ def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
                              "contracted legs need the same sectors and opposite flows")
 
 
-@lru_cache(maxsize=2048)
+@lru_cache(maxsize=64)
 def plan_contraction(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
                      b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
                      ) -> ContractionPlan:
@@ -90,79 +101,99 @@ def plan_contraction(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a:
     fm = _fusion(tuple(a_legs[i] for i in axes_a), k)
     qa, qb = np.asarray(a_charge), np.asarray(b_charge)
 
-    a_parts: dict[int, list[_Part]] = {}
-    lay_a = layout(a_legs, a_charge)
-    for bi, key in enumerate(lay_a.keys):
-        rs, ro, rshape = fa.entries[tuple(key[i] for i in free_a)]
-        ms, mo, mshape = fm.entries[tuple(key[i] for i in axes_a)]
-        a_parts.setdefault(ms, []).append(_Part(bi, ro, mo, int(np.prod(rshape)), int(np.prod(mshape))))
-    b_parts: dict[int, list[_Part]] = {}
-    lay_b = layout(b_legs, b_charge)
-    for bi, key in enumerate(lay_b.keys):
-        ms, mo, mshape = fm.entries[tuple(key[i] for i in axes_b)]
-        cs, co, cshape = fb.entries[tuple(key[i] for i in free_b)]
-        b_parts.setdefault(ms, []).append(_Part(bi, mo, co, int(np.prod(mshape)), int(np.prod(cshape))))
-
+    lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
+    a_parts = _parts(lay_a, free_a, axes_a, fa, fm, rows_first=True)
+    b_parts = _parts(lay_b, axes_b, free_b, fm, fb, rows_first=False)
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
     out_charge = tuple(int(c) for c in qa + qb)
     out_parts: dict[int, list[_Part]] = {}
     if out_legs:
         lay_o = layout(out_legs, out_charge)
         na = len(free_a)
+        mid_of = [fm.fused.index(tuple(int(x) for x in qa - np.asarray(q))) for q in fa.fused.charges]
         for bi, key in enumerate(lay_o.keys):
             rs, ro, rshape = fa.entries[key[:na]]
             cs, co, cshape = fb.entries[key[na:]]
-            mid = fm.fused.index(tuple(qa - np.asarray(fa.fused.charges[rs])))
-            out_parts.setdefault(mid, []).append(
-                _Part(bi, ro, co, int(np.prod(rshape)), int(np.prod(cshape))))
+            out_parts.setdefault(mid_of[rs], []).append(_Part(bi, ro, co, _size(rshape), _size(cshape)))
     groups = []
+    ga, gb, sc = [], [], []
+    pa = pb = pc = 0
     for ms in sorted(set(a_parts) & set(b_parts)):
         c = np.asarray(fm.fused.charges[ms])
         rs = fa.fused.index(tuple(qa - c))
         cs = fb.fused.index(tuple(qb + c))
         if rs < 0 or cs < 0:
             continue
-        parts = tuple(out_parts.get(ms, ())) if out_legs else (_Part(0, 0, 0, 1, 1),)
-        groups.append(_Group(fa.fused.sizes[rs], fm.fused.sizes[ms], fb.fused.sizes[cs],
-                             tuple(a_parts[ms]), tuple(b_parts[ms]), parts))
-    return ContractionPlan(out_legs, out_charge, free_a + tuple(axes_a), tuple(axes_b) + free_b,
-                           tuple(groups))
+        g = _Group(fa.fused.sizes[rs], fm.fused.sizes[ms], fb.fused.sizes[cs], pa, pb, pc)
+        groups.append(g)
+        ga.append(_gather(lay_a, a_parts[ms], free_a + tuple(axes_a), g.nrow, g.nmid))
+        gb.append(_gather(lay_b, b_parts[ms], tuple(axes_b) + free_b, g.nmid, g.ncol))
+        if out_legs:
+            sc.append(_gather(lay_o, out_parts.get(ms, ()), tuple(range(len(out_legs))), g.nrow, g.ncol))
+        pa, pb, pc = pa + g.nrow * g.nmid, pb + g.nmid * g.ncol, pc + g.nrow * g.ncol
+    return ContractionPlan(out_legs, out_charge, tuple(groups), _index(ga, lay_a.size),
+                           _index(gb, lay_b.size), _index(sc, lay_o.size) if out_legs else None,
+                           lay_o.size if out_legs else 1)
 
 
-def _pack(t: BlockTensor, parts, perm, nrow, ncol, dtype) -> np.ndarray:
-    """Assemble one group matrix from the blocks of ``t`` (a view when a single block fills it)."""
-    if len(parts) == 1 and parts[0].nrow == nrow and parts[0].ncol == ncol:
-        return t.block(parts[0].block).transpose(perm).reshape(nrow, ncol)
-    m = np.zeros((nrow, ncol), dtype=dtype)
+def _size(shape) -> int:
+    return math.prod(shape)
+
+
+def _parts(lay, row_axes, col_axes, frow, fcol, rows_first: bool) -> dict[int, list[_Part]]:
+    """Place every block of a layout in its group matrix; group = fused sector of the middle legs."""
+    parts: dict[int, list[_Part]] = {}
+    for bi, key in enumerate(lay.keys):
+        rs, ro, rshape = frow.entries[tuple(key[i] for i in row_axes)]
+        cs, co, cshape = fcol.entries[tuple(key[i] for i in col_axes)]
+        group = cs if rows_first else rs
+        parts.setdefault(group, []).append(_Part(bi, ro, co, _size(rshape), _size(cshape)))
+    return parts
+
+
+def _gather(lay, parts, perm, nrow: int, ncol: int) -> np.ndarray:
+    """Flat-data position of every entry of one group matrix (-1 where no block covers it)."""
+    idx = np.full((nrow, ncol), -1, dtype=np.int64)
     for p in parts:
-        m[p.row:p.row + p.nrow, p.col:p.col + p.ncol] = t.block(p.block).transpose(perm).reshape(p.nrow, p.ncol)
-    return m
+        start = int(lay.offsets[p.block])
+        block = np.arange(start, start + p.nrow * p.ncol, dtype=np.int64).reshape(lay.shapes[p.block])
+        idx[p.row:p.row + p.nrow, p.col:p.col + p.ncol] = block.transpose(perm).reshape(p.nrow, p.ncol)
+    return idx.ravel()
+
+
+def _index(pieces: list[np.ndarray], size: int) -> np.ndarray | None:
+    """Concatenate gather pieces; None when they are the identity (no copy needed)."""
+    if not pieces:
+        return np.zeros(0, dtype=np.int64)
+    idx = np.concatenate(pieces)
+    if idx.size == size and np.array_equal(idx, np.arange(size)):
+        return None
+    if np.any(idx < 0):
+        raise AssertionError("contraction plan left a hole in a group matrix")
+    return idx.astype(np.int32) if size < 2**31 - 1 else idx
+
+
+def _packed(data: np.ndarray, gather: np.ndarray | None) -> np.ndarray:
+    return data if gather is None else data[gather]
 
 
 def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
     """Execute a contraction plan; returns a BlockTensor, or a scalar if no leg is left."""
     dtype = np.result_type(a.dtype, b.dtype)
-    if not plan.out_legs:
-        total = dtype.type(0)
-        for g in plan.groups:
-            am = _pack(a, g.a_parts, plan.perm_a, g.nrow, g.nmid, dtype)
-            bm = _pack(b, g.b_parts, plan.perm_b, g.nmid, g.ncol, dtype)
-            total += (am @ bm)[0, 0]
-        return total
-    out = BlockTensor(plan.out_legs, plan.out_charge, dtype=dtype)
-    offs = out.layout.offsets
+    pa = _packed(a.data, plan.gather_a)
+    pb = _packed(b.data, plan.gather_b)
+    pc = np.zeros(sum(g.nrow * g.ncol for g in plan.groups), dtype=dtype)
     for g in plan.groups:
-        am = _pack(a, g.a_parts, plan.perm_a, g.nrow, g.nmid, dtype)
-        bm = _pack(b, g.b_parts, plan.perm_b, g.nmid, g.ncol, dtype)
-        if len(g.out_parts) == 1 and g.out_parts[0].nrow == g.nrow and g.out_parts[0].ncol == g.ncol:
-            o = offs[g.out_parts[0].block]
-            np.matmul(am, bm, out=out.data[o:o + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
-            continue
-        cm = am @ bm
-        for p in g.out_parts:
-            o = offs[p.block]
-            out.data[o:o + p.nrow * p.ncol] = cm[p.row:p.row + p.nrow, p.col:p.col + p.ncol].reshape(-1)
-    return out
+        np.matmul(pa[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
+                  pb[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
+                  out=pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
+    if not plan.out_legs:
+        return pc.sum() if pc.size else dtype.type(0)
+    if plan.scatter_out is None:
+        return BlockTensor(plan.out_legs, plan.out_charge, pc)
+    out = np.zeros(plan.out_size, dtype=dtype)
+    out[plan.scatter_out] = pc
+    return BlockTensor(plan.out_legs, plan.out_charge, out)
 
 
 def contract(a: BlockTensor, b: BlockTensor, axes_a, axes_b):

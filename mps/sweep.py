@@ -127,7 +127,7 @@ class GroundStateSearch:
     def _sweep(self, stage: Stage, on_bond: Callable[[int, int], None] | None) -> tuple[float, float]:
         n = self.state.sites
         ts, ws = self.state.tensors, self.mpo.tensors
-        tol = max(1e-13, 1e-2 * math.sqrt(self.settings.energy_tol))
+        tol = max(1e-13, 0.1 * math.sqrt(self.settings.energy_tol))
         worst = 0.0
         energy = math.nan
         steps = 2 * (n - 1)

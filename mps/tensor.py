@@ -58,13 +58,12 @@ def layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
             if len(need) else np.zeros(0, dtype=np.int64)
         ok = idx >= 0
         combos = np.concatenate([head[ok], idx[ok][:, None]], axis=1)
-    keys, shapes = [], []
-    for combo in combos.tolist():
-        shape = tuple(legs[i].sizes[c] for i, c in enumerate(combo))
-        if all(shape):
-            keys.append(tuple(combo))
-            shapes.append(shape)
-    sizes = [int(np.prod(s)) for s in shapes]
+    dims = np.stack([np.asarray(leg.sizes, dtype=np.int64)[combos[:, i]] for i, leg in enumerate(legs)],
+                    axis=1) if combos.size else np.zeros((0, len(legs)), dtype=np.int64)
+    nonempty = np.all(dims > 0, axis=1)
+    keys = list(map(tuple, combos[nonempty].tolist()))
+    shapes = list(map(tuple, dims[nonempty].tolist()))
+    sizes = np.prod(dims[nonempty], axis=1) if keys else np.zeros(0, dtype=np.int64)
     offsets = np.concatenate([[0], np.cumsum(sizes, dtype=np.int64)]).astype(np.int64)
     return Layout(legs, tuple(charge), tuple(keys), tuple(shapes), offsets,
                   {kk: i for i, kk in enumerate(keys)})
