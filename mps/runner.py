@@ -1,0 +1,222 @@
+"""What the command-line verbs do: run, resume and analyse a ground-state search in a run directory.
+
+``run`` validates the config, builds the operator (refusing non-conserving or non-Hermitian
+chains before any solving), sweeps stage by stage with a checkpoint after every sweep, then
+writes the summary and the entanglement tables. ``resume`` continues from the last checkpoint;
+the solver section of the run's config.yaml may be extended (more stages, larger bonds) but the
+model may not change. Ctrl-C stops after telling how to resume; the last completed sweep is
+always on disk.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import sys
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+
+from mps import __version__
+from mps.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
+from mps.config import InputError, RunConfig, config_hash, dump_config, load_config
+from mps.mpo import Mpo, OperatorError, build_mpo
+from mps.rundir import CHECKPOINT, CONFIG, SUMMARY, SWEEPS, RunLock, write_json, write_table, write_text
+from mps.state import product_state, random_state
+from mps.sweep import GroundStateSearch, Progress, Stage, SweepSettings, energy_and_variance
+
+SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds"]
+
+
+# ----------------------------------------------------------------------------- helpers
+def solver_hash(cfg: RunConfig) -> str:
+    text = json.dumps(cfg.solver.to_dict(), sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def build_operator(cfg: RunConfig) -> Mpo:
+    """The chain's MPO; a non-conserving or non-Hermitian chain is bad input (exit code 2)."""
+    fam = cfg.model.family_record()
+    try:
+        return build_mpo(fam.space(), cfg.model.sites, cfg.model.terms())
+    except OperatorError as exc:
+        raise InputError(f"model: {exc}") from None
+
+
+def sweep_settings(cfg: RunConfig) -> SweepSettings:
+    stages = tuple(Stage(s.bond, s.sweeps, s.noise) for s in cfg.solver.stages)
+    return SweepSettings(stages, cfg.solver.discard, cfg.solver.energy_tol, cfg.solver.krylov_dim)
+
+
+class ProgressLine:
+    """One status line on stderr, redrawn in place on a terminal, one line per sweep otherwise."""
+
+    def __init__(self, settings: SweepSettings, stream=None):
+        self.stream = stream or sys.stderr
+        self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
+        self.total = sum(s.sweeps for s in settings.stages)
+        self.start = time.perf_counter()
+        self.sweep_times: list[float] = []
+        self.last = ""
+
+    def bond(self, step: int, steps: int, sweep: int) -> None:
+        if self.tty:
+            self._draw(f"sweep {sweep}: bond {step}/{steps}{self.last}", final=False)
+
+    def sweep(self, rec, done: int) -> None:
+        self.sweep_times.append(rec.seconds)
+        left = max(self.total - done, 0) * float(np.mean(self.sweep_times[-3:]))
+        delta = "" if math.isnan(rec.delta_energy) else f" dE {rec.delta_energy:+.2e}"
+        self.last = (f" | E {rec.energy:.10f}{delta} trunc {rec.truncation:.1e} D {rec.max_bond}"
+                     f" | {time.perf_counter() - self.start:.1f} s, <= {left:.0f} s left")
+        self._draw(f"sweep {rec.sweep} stage {rec.stage + 1} bond {rec.bond}{self.last}", final=True)
+
+    def _draw(self, text: str, final: bool) -> None:
+        if self.tty:
+            self.stream.write("\r\x1b[2K" + text + ("\n" if final else ""))
+        elif final:
+            self.stream.write(text + "\n")
+        self.stream.flush()
+
+    def say(self, text: str) -> None:
+        self.stream.write(text + "\n")
+        self.stream.flush()
+
+
+def _rng_from(state: dict | None, seed: int) -> np.random.Generator:
+    rng = np.random.default_rng(seed)
+    if state is not None:
+        rng.bit_generator.state = state
+    return rng
+
+
+def _history_rows(progress: Progress) -> list[list]:
+    return [[r.sweep, r.stage, r.bond, r.energy, r.delta_energy, r.truncation, r.max_entropy, r.seconds]
+            for r in progress.history]
+
+
+# ----------------------------------------------------------------------------- the search
+def _search(directory: Path, cfg: RunConfig, search: GroundStateSearch, rng: np.random.Generator,
+            show: ProgressLine) -> int:
+    """Sweep to the end, checkpointing after each sweep; returns the exit code."""
+    mhash, shash = config_hash(cfg.model), solver_hash(cfg)
+    sweep_no = search.progress.sweep + 1
+
+    def on_bond(step, steps):
+        show.bond(step, steps, sweep_no)
+
+    try:
+        for rec in search.run(on_bond=on_bond):
+            save_checkpoint(directory / CHECKPOINT, search.state, search.progress,
+                            rng.bit_generator.state, mhash, shash)
+            write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
+            show.sweep(rec, sum(1 for _ in search.progress.history))
+            sweep_no = rec.sweep + 1
+    except KeyboardInterrupt:
+        show.say(f"\ninterrupted; the checkpoint after sweep {search.progress.sweep} is in "
+                 f"{directory / CHECKPOINT}. Continue with: chargewise resume {directory}")
+        return 130
+    return 0
+
+
+def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: GroundStateSearch, seconds: float,
+            show: ProgressLine) -> None:
+    energy, variance = energy_and_variance(search.state, mpo)
+    hist = search.progress.history
+    summary = {
+        "name": cfg.name, "family": cfg.model.family, "sites": cfg.model.sites,
+        "energy": energy, "energy_per_site": energy / cfg.model.sites, "variance": variance,
+        "converged": search.progress.converged, "sweeps": search.progress.sweep,
+        "max_bond": max(search.state.bond_dims), "truncation": hist[-1].truncation if hist else 0.0,
+        "seconds": seconds, "version": __version__,
+    }
+    _write_analysis(directory, cfg, search.state, summary)
+    write_json(directory / SUMMARY, summary)
+    show.say(f"E = {energy:.12f} ({energy / cfg.model.sites:.12f} per site), variance {variance:.2e}, "
+             f"{'converged' if search.progress.converged else 'NOT converged'} after "
+             f"{search.progress.sweep} sweeps; results in {directory}")
+
+
+def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict) -> None:
+    """Entanglement tables, when the analysis stage is available."""
+    try:
+        from mps import analysis_tables
+    except ImportError:
+        return
+    analysis_tables.write_all(directory, cfg, state, summary)
+
+
+# ----------------------------------------------------------------------------- verbs
+def run(config_path: str, out: str | None = None) -> int:
+    cfg = load_config(config_path)
+    if out is not None:
+        cfg = replace(cfg, output=replace(cfg.output, dir=str(out)))
+    mpo = build_operator(cfg)
+    directory = Path(cfg.output.dir)
+    if (directory / CHECKPOINT).exists():
+        raise InputError(f"{directory}: already holds a run; continue it with "
+                         f"'chargewise resume {directory}' or choose another output.dir / --out")
+    directory.mkdir(parents=True, exist_ok=True)
+    with RunLock(directory):
+        write_text(directory / CONFIG, dump_config(cfg))
+        rng = np.random.default_rng(cfg.solver.seed)
+        target = cfg.model.integer_charge()
+        first = cfg.solver.stages[0].bond
+        if cfg.solver.init == "product":
+            state = product_state(mpo.phys, cfg.model.sites, target)
+        else:
+            state = random_state(mpo.phys, cfg.model.sites, target, min(first, 16), rng)
+        settings = sweep_settings(cfg)
+        search = GroundStateSearch(mpo, state, settings, rng)
+        show = ProgressLine(settings)
+        show.say(f"{cfg.name}: {cfg.model.family}, {cfg.model.sites} sites, "
+                 f"charge {cfg.model.charge}, operator bond {max(mpo.bond_dims)}")
+        t0 = time.perf_counter()
+        code = _search(directory, cfg, search, rng, show)
+        if code:
+            return code
+        _finish(directory, cfg, mpo, search, time.perf_counter() - t0, show)
+    return 0
+
+
+def resume(directory: str) -> int:
+    directory = Path(directory)
+    if not (directory / CONFIG).is_file():
+        raise InputError(f"{directory}: not a run directory (no {CONFIG})")
+    cfg = load_config(directory / CONFIG)
+    cfg = replace(cfg, output=replace(cfg.output, dir=str(directory)))
+    with RunLock(directory):
+        state, progress, rng_state, meta = load_checkpoint(directory / CHECKPOINT)
+        if meta["model_hash"] != config_hash(cfg.model):
+            raise CheckpointError(f"{directory}: the model in {CONFIG} differs from the one the checkpoint "
+                                  "was computed for; only the solver section may change on resume")
+        mpo = build_operator(cfg)
+        settings = sweep_settings(cfg)
+        if meta["solver_hash"] != solver_hash(cfg):
+            progress.converged = False
+        rng = _rng_from(rng_state, cfg.solver.seed)
+        search = GroundStateSearch(mpo, state, settings, rng, progress)
+        show = ProgressLine(settings)
+        show.say(f"{cfg.name}: resuming after sweep {progress.sweep} (stage {progress.stage + 1})")
+        t0 = time.perf_counter()
+        code = _search(directory, cfg, search, rng, show)
+        if code:
+            return code
+        previous = sum(r.seconds for r in progress.history)
+        _finish(directory, cfg, mpo, search, time.perf_counter() - t0 + previous, show)
+    return 0
+
+
+def load_run(directory: str | Path):
+    """Config and stored state of a finished or interrupted run (for analysis and notebooks)."""
+    directory = Path(directory)
+    if not (directory / CONFIG).is_file():
+        raise InputError(f"{directory}: not a run directory (no {CONFIG})")
+    cfg = load_config(directory / CONFIG)
+    state, progress, _, meta = load_checkpoint(directory / CHECKPOINT)
+    if meta["model_hash"] != config_hash(cfg.model):
+        raise CheckpointError(f"{directory}: {CONFIG} does not match the stored state")
+    return cfg, state, progress
