@@ -27,7 +27,7 @@ from mps.decompose import scale_leg, svd
 from mps.effective import TwoSiteOperator, grow_left, grow_right, left_boundary, right_boundary
 from mps.krylov import lowest_eigenpair
 from mps.mpo import Mpo
-from mps.state import BondSpectrum, ChainState, canonicalize
+from mps.state import BondSpectrum, ChainState, canonicalize, product_state, random_state
 from mps.tensor import BlockTensor
 
 
@@ -209,3 +209,17 @@ def energy_and_variance(state: ChainState, mpo: Mpo) -> tuple[float, float]:
 def overlap_norm(state: ChainState) -> float:
     """<psi|psi> from the orthogonality centre (the other tensors are isometries)."""
     return state.tensors[state.center].norm() ** 2
+
+
+def find_ground_state(mpo: Mpo, target, settings: SweepSettings, rng: np.random.Generator,
+                      init: str = "random", init_bond: int = 16) -> GroundStateSearch:
+    """Run every stage from a random (or product) state in the sector ``target``; for notebooks
+    and tests. The finished search holds the state, its Schmidt values and the sweep history."""
+    if init == "product":
+        state = product_state(mpo.phys, mpo.sites, target)
+    else:
+        state = random_state(mpo.phys, mpo.sites, target, init_bond, rng)
+    search = GroundStateSearch(mpo, state, settings, rng)
+    for _ in search.run():
+        pass
+    return search

@@ -24,7 +24,7 @@ import scipy.linalg as sla
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-DENSE_LIMIT = 4000  # dimension up to which ground_state uses dense eigh
+DENSE_LIMIT = 2000  # default dimension up to which ground_state uses dense eigh
 
 
 def sector_basis(L: int, n: int) -> np.ndarray:
@@ -136,14 +136,16 @@ def quadratic_fermion_sector(hmat: np.ndarray, n: int) -> tuple[sp.csr_matrix, n
     return sp.csr_matrix(H), basis
 
 
-def ground_state(H: sp.spmatrix, degeneracy_tol: float = 1e-9) -> tuple[float, np.ndarray]:
+def ground_state(
+    H: sp.spmatrix, degeneracy_tol: float = 1e-9, dense_limit: int = DENSE_LIMIT
+) -> tuple[float, np.ndarray]:
     """Lowest eigenpair; raises if the two lowest levels are within ``degeneracy_tol``.
 
-    Dense ``eigh`` up to dimension DENSE_LIMIT, Lanczos (``eigsh``) beyond. The phase is fixed
+    Dense ``eigh`` up to dimension ``dense_limit``, Lanczos (``eigsh``) beyond. The phase is fixed
     so that the largest component is real and positive.
     """
     dim = H.shape[0]
-    if dim <= DENSE_LIMIT:
+    if dim <= dense_limit:
         evals, evecs = sla.eigh(H.toarray())
         evals, evecs = evals[:2], evecs[:, :2]
     else:

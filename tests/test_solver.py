@@ -1,0 +1,107 @@
+"""Two-site ground-state sweeps against exact references.
+
+Sources: exact diagonalisation with scipy.sparse (tests/reference_ed.py, a general-purpose
+reference library, sharing no code with the engine); the XX chain's free-fermion spectrum
+J cos(pi k/(L+1)) (Lieb, Schultz and Mattis, Ann. Phys. 16, 407 (1961)); Hulthen's ground-state
+energy 1/4 - ln 2 per site of the Heisenberg chain (Hulthen, Ark. Mat. Astron. Fys. 26A (1938);
+Bethe ansatz).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+import reference_ed as ed
+from models import get_family
+from mps.mpo import build_mpo
+from mps.sweep import Stage, SweepSettings, energy_and_variance, find_ground_state
+
+SETTINGS = SweepSettings((Stage(32, 2, 1e-5), Stage(128, 8, 0.0)), discard=1e-14, energy_tol=1e-12)
+
+
+def solve(family: str, sites: int, couplings: dict, charge: dict, settings=SETTINGS, seed=3):
+    fam = get_family(family)
+    space = fam.space()
+    mpo = build_mpo(space, sites, fam.terms(sites, couplings))
+    target = tuple(int(round(charge[n] / u)) for n, u in zip(space.charge_names, space.charge_units))
+    return mpo, find_ground_state(mpo, target, settings, np.random.default_rng(seed))
+
+
+# Every coupling of each family switched on (DESIGN.md section 3).
+CASES = {
+    "xxz-all-couplings": ("xxz", 10, dict(J=1.0, Delta=0.7, h=0.13, h_stag=0.3, dimer=0.2), {"Sz": 0.0}),
+    "xxz-ferro-side-odd": ("xxz", 11, dict(J=0.8, Delta=-0.4, h=0.05, h_stag=-0.2, dimer=-0.1), {"Sz": 0.5}),
+    "xxz-magnetised": ("xxz", 12, dict(J=1.0, Delta=1.0, h=0.4, h_stag=0.1, dimer=0.15), {"Sz": 1.0}),
+    "fermions-all-couplings": ("fermions", 10, dict(t=1.0, V=0.9, mu=0.2, mu_stag=0.35, dimer=0.25), {"N": 5}),
+    "fermions-low-filling": ("fermions", 12, dict(t=0.7, V=-0.5, mu=0.1, mu_stag=-0.2, dimer=0.1), {"N": 4}),
+}
+
+
+def reference(family, sites, couplings, charge):
+    if family == "xxz":
+        n_up = int(round(charge["Sz"] + sites / 2))
+        h, basis = ed.xxz_sector(sites, n_up, **couplings)
+        return h, basis, 1.0, -0.5
+    h, basis = ed.fermion_sector(sites, int(charge["N"]), **couplings)
+    return h, basis, 1.0, 0.0
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_energy_and_schmidt_values_match_exact_diagonalisation(name):
+    # Source: exact diagonalisation with scipy.sparse in the same charge sector.
+    family, sites, couplings, charge = CASES[name]
+    mpo, search = solve(family, sites, couplings, charge)
+    h, basis, unit, offset = reference(family, sites, couplings, charge)
+    e_exact, vec = ed.ground_state(h)
+    assert search.progress.history[-1].energy == pytest.approx(e_exact, abs=1e-9)
+    energy, variance = energy_and_variance(search.state, mpo)
+    assert energy == pytest.approx(e_exact, abs=1e-9)
+    assert abs(variance) < 1e-8
+    units = get_family(family).space().charge_units
+    for cut in range(1, sites):
+        exact = ed.schmidt_by_sector(vec, basis, sites, cut, unit, offset)
+        ours = {units[0] * q[0]: v for q, v in search.state.spectra[cut].as_dict().items()}
+        for q, s in exact.items():
+            s = s[s > 1e-7]
+            mine = np.sort(ours.get(q, np.zeros(0)))[::-1][:len(s)]
+            assert len(mine) == len(s), (cut, q)
+            np.testing.assert_allclose(mine, s, atol=1e-7)
+
+
+@pytest.mark.slow
+def test_xx_chain_of_100_sites_matches_free_fermions():
+    # Source: XX chain = free fermions with hopping J/2, single-particle energies J cos(pi k/(L+1)),
+    # the ground state fills the negative ones (Lieb, Schultz and Mattis 1961; DESIGN.md section 5).
+    sites = 100
+    settings = SweepSettings((Stage(48, 2, 1e-5), Stage(96, 3, 0.0)), discard=1e-12, energy_tol=1e-10)
+    _, search = solve("xxz", sites, dict(J=1.0, Delta=0.0), {"Sz": 0.0}, settings)
+    k = np.arange(1, sites + 1)
+    eps = np.cos(np.pi * k / (sites + 1))
+    exact = eps[eps < 0].sum()
+    assert abs(search.progress.energy - exact) / abs(exact) < 1e-8
+
+
+def test_heisenberg_energy_per_site_extrapolates_to_hulthen():
+    # Source: e0 = 1/4 - ln 2 (Hulthen 1938, Bethe ansatz). Open chains: E(L) = e0 L + b + O(1/L),
+    # so the difference of two lengths removes the boundary energy b.
+    settings = SweepSettings((Stage(32, 2, 1e-5), Stage(64, 4, 0.0)), discard=1e-10, energy_tol=1e-8)
+    energies = {}
+    for sites in (24, 48):
+        _, search = solve("xxz", sites, dict(J=1.0, Delta=1.0), {"Sz": 0.0}, settings)
+        energies[sites] = search.progress.energy
+    e0 = (energies[48] - energies[24]) / 24
+    assert abs(e0 - (0.25 - math.log(2))) < 1e-3
+
+
+def test_jordan_wigner_equivalence_of_xxz_and_free_fermions():
+    # Source: exact Jordan-Wigner map (DESIGN.md section 5): xxz at Delta = 0 equals the fermion
+    # chain with t = J/2 (hopping sign is a gauge choice), S^z_j = n_j - 1/2 so that a staggered
+    # field h_stag equals mu_stag = -h_stag, up to the constant -(1/2) sum_j h_stag (-1)^j = 0
+    # for an even chain.
+    sites = 14
+    _, spins = solve("xxz", sites, dict(J=1.0, Delta=0.0, h_stag=0.3, dimer=0.2), {"Sz": 1.0})
+    _, ferm = solve("fermions", sites, dict(t=0.5, V=0.0, mu_stag=-0.3, dimer=0.2), {"N": 8})
+    assert spins.progress.energy == pytest.approx(ferm.progress.energy, abs=1e-10)
