@@ -1,0 +1,185 @@
+"""End-to-end: ``chargewise run`` / ``resume`` on small chains, checkpoints and refusals.
+
+Reference for the energies: exact diagonalisation with scipy.sparse (tests/reference_ed.py).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import h5py
+import pytest
+import yaml
+
+import reference_ed as ed
+from mps import runner
+from mps.checkpoint import CheckpointError, load_checkpoint
+from mps.config import InputError
+from mps.sweep import GroundStateSearch
+
+CONFIG = {
+    "name": "ladder-test",
+    "model": {"family": "xxz", "sites": 12, "couplings": {"J": 1.0, "Delta": 0.8, "h_stag": 0.2,
+                                                          "dimer": 0.1},
+              "charge": {"Sz": 0}},
+    "solver": {"stages": [{"bond": 8, "sweeps": 2}, {"bond": 24, "sweeps": 2}, {"bond": 64, "sweeps": 6}],
+               "discard": 1e-14, "energy_tol": 1e-12, "seed": 7},
+    "analysis": {"renyi": [1, 2, "inf"]},
+}
+
+
+def write_config(tmp_path: Path, **changes) -> Path:
+    cfg = json.loads(json.dumps(CONFIG))
+    for key, value in changes.items():
+        cfg[key] = value
+    path = tmp_path / "chain.yaml"
+    path.write_text(yaml.safe_dump(cfg))
+    return path
+
+
+def cli(*args, **kw):
+    return subprocess.run([sys.executable, "-m", "mps", *map(str, args)], capture_output=True,
+                          text=True, **kw)
+
+
+def exact_energy() -> float:
+    # Source: exact diagonalisation with scipy.sparse in the sector S^z = 0.
+    c = CONFIG["model"]["couplings"]
+    h, _ = ed.xxz_sector(12, 6, J=c["J"], Delta=c["Delta"], h_stag=c["h_stag"], dimer=c["dimer"])
+    return ed.ground_state(h)[0]
+
+
+def summary(directory: Path) -> dict:
+    return json.loads((directory / "summary.json").read_text())
+
+
+def test_run_writes_the_run_directory_and_matches_exact_diagonalisation(tmp_path):
+    out = tmp_path / "run"
+    res = cli("run", write_config(tmp_path), "--out", out)
+    assert res.returncode == 0, res.stderr
+    for name in ("config.yaml", "state.h5", "sweeps.csv", "summary.json"):
+        assert (out / name).is_file()
+    s = summary(out)
+    for key in ("energy", "energy_per_site", "variance", "converged", "sweeps", "max_bond",
+                "truncation", "seconds", "version"):
+        assert key in s
+    assert s["energy"] == pytest.approx(exact_energy(), abs=1e-9)
+    assert s["converged"] is True
+    header = (out / "sweeps.csv").read_text().splitlines()[0]
+    assert header == "sweep,stage,bond,energy,delta_energy,truncation,max_entropy,seconds"
+    again = cli("run", write_config(tmp_path), "--out", out)
+    assert again.returncode == 2 and "resume" in again.stderr and "Traceback" not in again.stderr
+
+
+def test_interrupted_run_resumes_to_the_same_energy(tmp_path, monkeypatch):
+    cfg = write_config(tmp_path)
+    assert runner.run(str(cfg), str(tmp_path / "whole")) == 0
+    original = GroundStateSearch.run
+
+    def interrupted(self, on_bond=None):
+        for k, rec in enumerate(original(self, on_bond)):
+            yield rec
+            if k == 2:
+                raise KeyboardInterrupt
+
+    monkeypatch.setattr(GroundStateSearch, "run", interrupted)
+    assert runner.run(str(cfg), str(tmp_path / "cut")) == 130
+    _, progress, _, _ = load_checkpoint(tmp_path / "cut" / "state.h5")
+    assert progress.sweep == 3
+    monkeypatch.setattr(GroundStateSearch, "run", original)
+    assert runner.resume(str(tmp_path / "cut")) == 0
+    a, b = summary(tmp_path / "whole"), summary(tmp_path / "cut")
+    assert b["energy"] == pytest.approx(a["energy"], abs=1e-10)
+    assert b["sweeps"] == a["sweeps"]
+
+
+def test_ctrl_c_keeps_last_checkpoint_and_says_how_to_resume(tmp_path):
+    cfg = dict(CONFIG)
+    cfg["model"] = dict(CONFIG["model"], sites=24)
+    cfg["solver"] = dict(CONFIG["solver"], stages=[{"bond": 16, "sweeps": 2}, {"bond": 48, "sweeps": 30}],
+                         energy_tol=1e-15)
+    path = tmp_path / "long.yaml"
+    path.write_text(yaml.safe_dump(cfg))
+    out = tmp_path / "run"
+    proc = subprocess.Popen([sys.executable, "-m", "mps", "run", str(path), "--out", str(out)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.time() + 120
+    while time.time() < deadline and not (out / "sweeps.csv").exists():
+        time.sleep(0.2)
+    proc.send_signal(signal.SIGINT)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, err
+    assert "chargewise resume" in err and "Traceback" not in err
+    state, progress, _, _ = load_checkpoint(out / "state.h5")
+    assert progress.sweep >= 1 and state.sites == 24
+    assert not (out / ".lock").exists()
+
+
+def test_resume_refuses_a_changed_model(tmp_path):
+    out = tmp_path / "run"
+    assert cli("run", write_config(tmp_path), "--out", out).returncode == 0
+    cfg = yaml.safe_load((out / "config.yaml").read_text())
+    cfg["model"]["couplings"]["Delta"] = 0.5
+    (out / "config.yaml").write_text(yaml.safe_dump(cfg))
+    before = (out / "state.h5").read_bytes()
+    res = cli("resume", out)
+    assert res.returncode == 2
+    assert "model" in res.stderr and len(res.stderr.strip().splitlines()) == 1
+    assert (out / "state.h5").read_bytes() == before
+
+
+def test_resume_with_an_extended_solver_section_continues(tmp_path):
+    out = tmp_path / "run"
+    short = dict(CONFIG["solver"], stages=[{"bond": 8, "sweeps": 2}])
+    assert cli("run", write_config(tmp_path, solver=short), "--out", out).returncode == 0
+    coarse = summary(out)["energy"]
+    cfg = yaml.safe_load((out / "config.yaml").read_text())
+    cfg["solver"]["stages"].append({"bond": 64, "sweeps": 6, "noise": 0.0})
+    (out / "config.yaml").write_text(yaml.safe_dump(cfg))
+    res = cli("resume", out)
+    assert res.returncode == 0, res.stderr
+    fine = summary(out)["energy"]
+    assert fine < coarse
+    assert fine == pytest.approx(exact_energy(), abs=1e-9)
+
+
+def test_corrupted_and_foreign_checkpoints_are_refused(tmp_path):
+    out = tmp_path / "run"
+    assert cli("run", write_config(tmp_path), "--out", out).returncode == 0
+    with h5py.File(out / "state.h5", "r+") as f:
+        f["sites/3/data"][0] += 1e-3
+    with pytest.raises(CheckpointError, match="corrupted"):
+        load_checkpoint(out / "state.h5")
+    res = cli("resume", out)
+    assert res.returncode == 2 and "corrupted" in res.stderr
+    foreign = tmp_path / "foreign.h5"
+    with h5py.File(foreign, "w") as f:
+        f["x"] = [1, 2, 3]
+    with pytest.raises(CheckpointError, match="not a chargewise checkpoint"):
+        load_checkpoint(foreign)
+    (tmp_path / "junk.h5").write_bytes(b"not hdf5 at all")
+    with pytest.raises(CheckpointError):
+        load_checkpoint(tmp_path / "junk.h5")
+
+
+def test_a_live_lock_refuses_a_second_writer(tmp_path):
+    out = tmp_path / "run"
+    out.mkdir()
+    (out / ".lock").write_text(str(os.getppid()))
+    with pytest.raises(InputError, match="another chargewise process"):
+        runner.run(str(write_config(tmp_path)), str(out))
+    (out / ".lock").write_text("999999999")  # a dead process: stale lock is taken over
+    assert runner.run(str(write_config(tmp_path)), str(out)) == 0
+
+
+def test_non_hermitian_or_non_conserving_chains_never_start(tmp_path):
+    res = cli("run", write_config(tmp_path, model={**CONFIG["model"], "charge": {"Sz": 0.5}}),
+              "--out", tmp_path / "x")
+    assert res.returncode == 2 and "model.charge" in res.stderr
+    assert not (tmp_path / "x" / "state.h5").exists()
