@@ -26,6 +26,7 @@ from mps.config import InputError, RunConfig, config_hash, dump_config, load_con
 from mps.mpo import Mpo, OperatorError, build_mpo
 from mps.rundir import CHECKPOINT, CONFIG, SUMMARY, SWEEPS, RunLock, write_json, write_table, write_text
 from mps.state import product_state, random_state
+from mps.tables import entanglement_tables, write_tables
 from mps.sweep import GroundStateSearch, Progress, Stage, SweepSettings, energy_and_variance
 
 SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds"]
@@ -140,13 +141,13 @@ def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: GroundStateSearch
              f"{search.progress.sweep} sweeps; results in {directory}")
 
 
-def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict) -> None:
-    """Entanglement tables, when the analysis stage is available."""
-    try:
-        from mps import analysis_tables
-    except ImportError:
-        return
-    analysis_tables.write_all(directory, cfg, state, summary)
+def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict, renyi=None, cuts=None) -> None:
+    """Entanglement tables of every requested cut; the weight floor goes into the summary."""
+    space = cfg.model.family_record().space()
+    tables = entanglement_tables(state, space.charge_units, cfg.analysis, space.charge_names, renyi, cuts)
+    write_tables(directory, tables)
+    summary["weight_floor"] = cfg.analysis.weight_floor
+    summary["resolved_by"] = cfg.analysis.resolve
 
 
 # ----------------------------------------------------------------------------- verbs
@@ -220,3 +221,16 @@ def load_run(directory: str | Path):
     if meta["model_hash"] != config_hash(cfg.model):
         raise CheckpointError(f"{directory}: {CONFIG} does not match the stored state")
     return cfg, state, progress
+
+
+def analyze(directory: str, renyi=None, cuts=None) -> int:
+    """Recompute the entanglement tables from the stored state, without solving again."""
+    directory = Path(directory)
+    cfg, state, _ = load_run(directory)
+    with RunLock(directory):
+        summary_path = directory / SUMMARY
+        summary = json.loads(summary_path.read_text()) if summary_path.is_file() else {}
+        _write_analysis(directory, cfg, state, summary, renyi, cuts)
+        write_json(summary_path, summary)
+    print(f"tables written to {directory}", file=sys.stderr)
+    return 0
