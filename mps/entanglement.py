@@ -22,7 +22,7 @@ result describes the normalised state. All sums are done on logarithms of the we
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -201,6 +201,8 @@ def resolve_chain(
     component: int = 0,
     floor: float = 1e-12,
     first_cut: int = 1,
+    *,
+    degeneracy_tol: float = 1e-12,
 ) -> list[CutResolved]:
     """Resolve consecutive cuts ``first_cut, first_cut + 1, ...`` of a chain.
 
@@ -214,7 +216,8 @@ def resolve_chain(
         raise ValueError(f"offsets and offset_per_site need {k} entries, one per charge")
     return [
         resolve_cut(spec, first_cut + i, renyi, alphas, units,
-                    tuple(base + (first_cut + i) * step), component, floor)
+                    tuple(base + (first_cut + i) * step), component, floor,
+                    degeneracy_tol=degeneracy_tol)
         for i, spec in enumerate(schmidt_per_cut)
     ]
 
@@ -298,7 +301,9 @@ def _tables(
     )
 
 
-def _group(spec: dict, label) -> tuple[list[tuple[int, ...]], list[np.ndarray]]:
+def _group(
+    spec: dict[tuple[int, ...], np.ndarray], label: Callable[[tuple[int, ...]], tuple[int, ...]]
+) -> tuple[list[tuple[int, ...]], list[np.ndarray]]:
     """Merge the sectors whose keys share ``label(key)``; returns labels and value arrays."""
     merged: dict[tuple[int, ...], list[np.ndarray]] = {}
     for key, s in spec.items():
@@ -330,7 +335,7 @@ def _clean(
             raise ValueError(f"sector {q} appears twice")
         s = np.asarray(values, dtype=float)
         if s.ndim != 1:
-            raise ValueError(f"Schmidt values of sector {q} must be a 1-D array, got shape {s.shape}")
+            raise ValueError(f"Schmidt values of sector {q} must be a 1-D array, got {s.shape}")
         if not np.all(np.isfinite(s)):
             raise ValueError(f"Schmidt values of sector {q} must be finite")
         if np.any(s < 0):
