@@ -19,6 +19,7 @@ Schema (defaults in brackets; unknown keys at any level are refused)::
                                                  noise 1e-5, 0 on the last stage]
       discard: number >= 0 [1e-10]   energy_tol: number > 0 [1e-9]   seed: int >= 0 [1]
       krylov_dim: int >= 2 [24]      init: random | product [random]
+      eig_tol: number > 0 [1e-10] (Lanczos residual in the last stage; 1e-7 or eig_tol before)
     analysis:
       renyi: [number > 0 or "inf"] [[1, 2, 3, inf]]    cuts: all | [1..sites-1] [all]
       flux_points: int >= 3 [65]   spectrum_levels: int >= 1 [20]
@@ -118,6 +119,7 @@ class SolverConfig:
     energy_tol: float
     seed: int
     krylov_dim: int
+    eig_tol: float
     init: str
 
     def to_dict(self) -> dict[str, Any]:
@@ -127,6 +129,7 @@ class SolverConfig:
             "energy_tol": self.energy_tol,
             "seed": self.seed,
             "krylov_dim": self.krylov_dim,
+            "eig_tol": self.eig_tol,
             "init": self.init,
         }
 
@@ -250,7 +253,7 @@ def config_hash(model_section: ModelConfig | Mapping[str, Any]) -> str:
 
 _TOP = ("name", "model", "solver", "analysis", "output")
 _MODEL = ("family", "sites", "couplings", "charge")
-_SOLVER = ("stages", "discard", "energy_tol", "seed", "krylov_dim", "init")
+_SOLVER = ("stages", "discard", "energy_tol", "seed", "krylov_dim", "eig_tol", "init")
 _STAGE = ("bond", "sweeps", "noise")
 _ANALYSIS = ("renyi", "cuts", "flux_points", "spectrum_levels", "weight_floor", "resolve")
 _OUTPUT = ("dir", "plots")
@@ -388,6 +391,7 @@ def _solver(sec: Mapping[str, Any]) -> SolverConfig:
         energy_tol=_real(sec.get("energy_tol", 1e-9), "solver.energy_tol", lo=0.0, lo_open=True),
         seed=_integer(sec.get("seed", 1), "solver.seed", 0),
         krylov_dim=_integer(sec.get("krylov_dim", 24), "solver.krylov_dim", 2),
+        eig_tol=_real(sec.get("eig_tol", 1e-10), "solver.eig_tol", lo=0.0, lo_open=True),
         init=init,
     )
 

@@ -49,7 +49,8 @@ def build_operator(cfg: RunConfig) -> Mpo:
 
 def sweep_settings(cfg: RunConfig) -> SweepSettings:
     stages = tuple(Stage(s.bond, s.sweeps, s.noise) for s in cfg.solver.stages)
-    return SweepSettings(stages, cfg.solver.discard, cfg.solver.energy_tol, cfg.solver.krylov_dim)
+    return SweepSettings(stages, cfg.solver.discard, cfg.solver.energy_tol, cfg.solver.krylov_dim,
+                         cfg.solver.eig_tol)
 
 
 class ProgressLine:

@@ -46,6 +46,12 @@ class SweepSettings:
     discard: float = 1e-10
     energy_tol: float = 1e-9
     krylov_dim: int = 24
+    eig_tol: float = 1e-10
+
+    def lanczos_tol(self, stage: int) -> float:
+        """Residual tolerance of the eigensolver: ``eig_tol`` in the last stage (it sets the
+        accuracy of the final state, hence of every Schmidt value), looser before."""
+        return self.eig_tol if stage == len(self.stages) - 1 else max(self.eig_tol, 1e-7)
 
 
 @dataclass(frozen=True)
@@ -127,7 +133,7 @@ class GroundStateSearch:
     def _sweep(self, stage: Stage, on_bond: Callable[[int, int], None] | None) -> tuple[float, float]:
         n = self.state.sites
         ts, ws = self.state.tensors, self.mpo.tensors
-        tol = max(1e-13, 0.1 * math.sqrt(self.settings.energy_tol))
+        tol = self.settings.lanczos_tol(self.progress.stage)
         worst = 0.0
         energy = math.nan
         steps = 2 * (n - 1)
