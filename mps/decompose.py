@@ -198,7 +198,7 @@ def eigh(t: BlockTensor, row_axes, col_axes) -> tuple[tuple[np.ndarray, ...], Bl
 
 def scale_leg(t: BlockTensor, axis: int, values) -> BlockTensor:
     """Multiply ``t`` along leg ``axis`` by a per-sector vector (e.g. singular values)."""
-    out = t.copy()
+    out = t.astype(np.result_type(t.dtype, *[np.asarray(v).dtype for v in values]))
     shape_fix = [1] * t.ndim
     for key, view in out.blocks():
         v = np.asarray(values[key[axis]])

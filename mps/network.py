@@ -36,13 +36,21 @@ def contract_network(expr: str, *tensors: BlockTensor):
         if len(term) != t.ndim or len(set(term)) != len(term):
             raise ValueError(f"index string {term!r} does not fit a {t.ndim}-leg tensor")
     ops = list(zip(terms, tensors))
-    for i, j in _order(expr.replace(" ", ""), tuple(t.shape for t in tensors)):
-        (ta, a), (tb, b) = ops[i], ops[j]
+    for step in _order(expr.replace(" ", ""), tuple(t.shape for t in tensors)):
+        picked = [ops[i] for i in step]
+        for idx in sorted(step, reverse=True):
+            ops.pop(idx)
+        if len(picked) == 1:  # a lone tensor: nothing to contract, it is permuted at the end
+            ops.append(picked[0])
+            continue
+        (ta, a), (tb, b) = picked
+        if not isinstance(a, BlockTensor) or not isinstance(b, BlockTensor):
+            # a closed part of a disconnected network has become a scalar
+            ops.append((ta + tb, b * a if isinstance(b, BlockTensor) else a * b))
+            continue
         shared = [c for c in ta if c in tb]
         res = contract(a, b, [ta.index(c) for c in shared], [tb.index(c) for c in shared])
         label = "".join(c for c in ta if c not in shared) + "".join(c for c in tb if c not in shared)
-        for idx in sorted((i, j), reverse=True):
-            ops.pop(idx)
         ops.append((label, res))
     label, res = ops[0]
     if not isinstance(res, BlockTensor):
