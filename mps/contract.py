@@ -49,10 +49,14 @@ class _Group:
 class ContractionPlan:
     """Everything needed to contract two structures.
 
-    ``gather_a`` lists, for every entry of the packed A matrices (group after group, C order),
-    its position in A's flat data; likewise ``gather_b``. ``scatter_out`` gives, for every entry
-    of the packed products, its position in the result's flat data. One fancy-index per operand
-    replaces a Python loop over blocks.
+    The operands are packed into one buffer of group matrices each (group after group, C order):
+    ``gather_a[i]`` is the position in A's flat data of packed entry i (likewise ``gather_b``;
+    None when the data is already in packed order). The products land in one packed buffer of
+    ``packed_size`` entries followed by a single zero; ``out_from_packed[j]`` is the packed
+    position of entry j of the result's flat data (the zero slot for entries no group produces;
+    None when the packed buffer already is the result). One fancy-index per operand replaces a
+    Python loop over blocks, and chained contractions can compose these maps (see
+    :class:`PlannedChain`).
     """
 
     out_legs: tuple[Leg, ...]
@@ -60,7 +64,8 @@ class ContractionPlan:
     groups: tuple[_Group, ...]
     gather_a: np.ndarray | None
     gather_b: np.ndarray | None
-    scatter_out: np.ndarray | None
+    out_from_packed: np.ndarray | None
+    packed_size: int
     out_size: int
 
     @property
@@ -87,7 +92,7 @@ def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
                              "contracted legs need the same sectors and opposite flows")
 
 
-@lru_cache(maxsize=64)
+@lru_cache(maxsize=24)
 def plan_contraction(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
                      b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
                      ) -> ContractionPlan:
@@ -131,9 +136,15 @@ def plan_contraction(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a:
         if out_legs:
             sc.append(_gather(lay_o, out_parts.get(ms, ()), tuple(range(len(out_legs))), g.nrow, g.ncol))
         pa, pb, pc = pa + g.nrow * g.nmid, pb + g.nmid * g.ncol, pc + g.nrow * g.ncol
+    out_size = lay_o.size if out_legs else 1
+    out_from = None
+    if out_legs:
+        scatter = np.concatenate(sc) if sc else np.zeros(0, dtype=np.int64)
+        if not (scatter.size == out_size and np.array_equal(scatter, np.arange(out_size))):
+            out_from = np.full(out_size, pc, dtype=np.intp)     # pc = the zero slot
+            out_from[scatter] = np.arange(scatter.size, dtype=np.intp)
     return ContractionPlan(out_legs, out_charge, tuple(groups), _index(ga, lay_a.size),
-                           _index(gb, lay_b.size), _index(sc, lay_o.size) if out_legs else None,
-                           lay_o.size if out_legs else 1)
+                           _index(gb, lay_b.size), out_from, pc, out_size)
 
 
 def _size(shape) -> int:
@@ -170,30 +181,92 @@ def _index(pieces: list[np.ndarray], size: int) -> np.ndarray | None:
         return None
     if np.any(idx < 0):
         raise AssertionError("contraction plan left a hole in a group matrix")
-    return idx.astype(np.int32) if size < 2**31 - 1 else idx
+    return idx.astype(np.intp)
 
 
 def _packed(data: np.ndarray, gather: np.ndarray | None) -> np.ndarray:
-    return data if gather is None else data[gather]
+    return data if gather is None else np.take(data, gather)
+
+
+def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype) -> np.ndarray:
+    """All group products of packed operands, into a packed buffer ending with one zero."""
+    pc = np.empty(plan.packed_size + 1, dtype=dtype)
+    pc[-1] = 0
+    for g in plan.groups:
+        np.matmul(pa[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
+                  pb[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
+                  out=pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
+    return pc
+
+
+def unpack(plan: ContractionPlan, pc: np.ndarray) -> np.ndarray:
+    """Flat data of the result from the packed products."""
+    return pc[:plan.packed_size] if plan.out_from_packed is None else np.take(pc, plan.out_from_packed)
 
 
 def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
     """Execute a contraction plan; returns a BlockTensor, or a scalar if no leg is left."""
     dtype = np.result_type(a.dtype, b.dtype)
-    pa = _packed(a.data, plan.gather_a)
-    pb = _packed(b.data, plan.gather_b)
-    pc = np.zeros(sum(g.nrow * g.ncol for g in plan.groups), dtype=dtype)
-    for g in plan.groups:
-        np.matmul(pa[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
-                  pb[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
-                  out=pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
+    pc = gemm_groups(plan, _packed(a.data, plan.gather_a), _packed(b.data, plan.gather_b), dtype)
     if not plan.out_legs:
-        return pc.sum() if pc.size else dtype.type(0)
-    if plan.scatter_out is None:
-        return BlockTensor(plan.out_legs, plan.out_charge, pc)
-    out = np.zeros(plan.out_size, dtype=dtype)
-    out[plan.scatter_out] = pc
-    return BlockTensor(plan.out_legs, plan.out_charge, out)
+        return pc[:-1].sum() if plan.packed_size else dtype.type(0)
+    return BlockTensor(plan.out_legs, plan.out_charge, unpack(plan, pc))
+
+
+class PlannedChain:
+    """A fixed sequence of contractions of a running tensor with constant tensors.
+
+    ``steps`` are ``(constant, axes of the running tensor, axes of the constant, running_first)``;
+    each step contracts the previous result with its constant (as the first operand of the
+    contraction when ``running_first``). The constants are packed once, and between steps the
+    result is never laid out as blocks: the unpacking map of one step and the packing map of the
+    next are composed into a single gather. Used for the effective Hamiltonian, whose Krylov
+    iterations repeat the same chain many times.
+    """
+
+    def __init__(self, template: BlockTensor, steps):
+        legs, charge = template.legs, template.charge
+        self.in_legs, self.in_charge = legs, charge
+        self.plans, self.constants, self.first = [], [], []
+        for const, ax_run, ax_const, run_first in steps:
+            ax_run = tuple(int(i) % len(legs) for i in ax_run)
+            ax_const = tuple(int(i) % const.ndim for i in ax_const)
+            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
+                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
+            self.plans.append(plan)
+            self.constants.append(_packed(const.data, plan.gather_b if run_first else plan.gather_a))
+            self.first.append(run_first)
+            legs, charge = plan.out_legs, plan.out_charge
+        self.out_legs, self.out_charge = legs, charge
+        first = self.plans[0]
+        self.gathers = [first.gather_a if self.first[0] else first.gather_b]
+        for prev, plan, run_first in zip(self.plans, self.plans[1:], self.first[1:]):
+            nxt = plan.gather_a if run_first else plan.gather_b
+            if prev.out_from_packed is None:
+                self.gathers.append(nxt)
+            elif nxt is None:
+                self.gathers.append(prev.out_from_packed)
+            else:
+                self.gathers.append(prev.out_from_packed[nxt])
+        self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants])
+
+    @property
+    def flops(self) -> int:
+        return sum(p.flops for p in self.plans)
+
+    def __call__(self, data: np.ndarray) -> np.ndarray:
+        """Flat data of the final result for the running tensor's flat ``data``."""
+        x = _packed(data, self.gathers[0])
+        for k, plan in enumerate(self.plans):
+            if k:
+                x = x if self.gathers[k] is None else np.take(x, self.gathers[k])
+            a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
+            x = gemm_groups(plan, a, b, self.dtype)
+            if k == len(self.plans) - 1:
+                return unpack(plan, x)
+            if self.gathers[k + 1] is None and plan.out_from_packed is None:
+                x = x[:plan.packed_size]
+        return x
 
 
 def contract(a: BlockTensor, b: BlockTensor, axes_a, axes_b):

@@ -13,7 +13,7 @@ from __future__ import annotations
 import numpy as np
 
 from mps.charges import Leg
-from mps.contract import contract
+from mps.contract import PlannedChain, contract
 from mps.tensor import BlockTensor
 
 
@@ -46,13 +46,27 @@ def grow_right(env: BlockTensor, b: BlockTensor, w: BlockTensor) -> BlockTensor:
     return contract(b.conj(), x, (1, 2), (1, 3))     # (l_bra, w, l)
 
 
+def merge_pair(w1: BlockTensor, w2: BlockTensor) -> BlockTensor:
+    """Two neighbouring MPO tensors as one (a, s1, s2, s1', s2', c) tensor, inputs before outputs.
+
+    Built once per bond, it lets the effective Hamiltonian touch the large intermediate once
+    for both physical sites instead of twice.
+    """
+    pair = contract(w1, w2, (3,), (0,))              # (a, s1', s1, s2', s2, c)
+    return pair.transpose((0, 2, 4, 1, 3, 5))
+
+
+def apply_merged(left: BlockTensor, pair: BlockTensor, right: BlockTensor, theta: BlockTensor) -> BlockTensor:
+    """H_eff theta with the merged MPO pair of :func:`merge_pair`."""
+    x = contract(left, theta, (2,), (0,))            # (l', a, s1, s2, r)
+    x = contract(x, pair, (1, 2, 3), (0, 1, 2))      # (l', r, s1', s2', c)
+    return contract(x, right, (1, 4), (2, 1))        # (l', s1', s2', r')
+
+
 def apply_two_site(left: BlockTensor, w1: BlockTensor, w2: BlockTensor, right: BlockTensor,
                    theta: BlockTensor) -> BlockTensor:
     """H_eff theta for the two-site tensor theta (l, s1, s2, r); the result has theta's structure."""
-    x = contract(left, theta, (2,), (0,))            # (l', w, s1, s2, r)
-    x = contract(x, w1, (1, 2), (0, 2))              # (l', s2, r, s1', w')
-    x = contract(x, w2, (1, 4), (2, 0))              # (l', r, s1', s2', w'')
-    return contract(x, right, (1, 4), (2, 1))        # (l', s1', s2', r')
+    return apply_merged(left, merge_pair(w1, w2), right, theta)
 
 
 class TwoSiteOperator:
@@ -63,9 +77,13 @@ class TwoSiteOperator:
     """
 
     def __init__(self, left, w1, w2, right, template: BlockTensor):
-        self.left, self.w1, self.w2, self.right = left, w1, w2, right
         self.legs, self.charge = template.legs, template.charge
-        self.dtype = np.result_type(left.dtype, w1.dtype, w2.dtype, right.dtype, template.dtype)
+        self.chain = PlannedChain(template, [(left, (0,), (2,), False),
+                                             (merge_pair(w1, w2), (1, 2, 3), (0, 1, 2), True),
+                                             (right, (1, 4), (2, 1), True)])
+        if self.chain.out_legs != self.legs or self.chain.out_charge != self.charge:
+            raise RuntimeError("effective Hamiltonian changes the block structure")
+        self.dtype = self.chain.dtype
         self.size = template.data.size
         self.applications = 0
 
@@ -74,7 +92,4 @@ class TwoSiteOperator:
 
     def matvec(self, vec: np.ndarray) -> np.ndarray:
         self.applications += 1
-        out = apply_two_site(self.left, self.w1, self.w2, self.right, self.wrap(vec))
-        if out.legs != self.legs:
-            raise RuntimeError("effective Hamiltonian changed the block structure")
-        return out.data
+        return self.chain(vec)

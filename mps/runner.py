@@ -235,3 +235,9 @@ def analyze(directory: str, renyi=None, cuts=None) -> int:
         write_json(summary_path, summary)
     print(f"tables written to {directory}", file=sys.stderr)
     return 0
+
+
+def bench(quick: bool = False) -> int:
+    from mps.bench import main as bench_main
+
+    return bench_main(quick)
