@@ -19,7 +19,7 @@ Schema (defaults in brackets; unknown keys at any level are refused)::
                                                  noise 1e-5, 0 on the last stage]
       discard: number >= 0 [1e-10]   energy_tol: number > 0 [1e-9]   seed: int >= 0 [1]
       krylov_dim: int >= 2 [24]      init: random | product [random]
-      eig_tol: number > 0 [1e-10] (Lanczos residual in the last stage; 1e-7 or eig_tol before)
+      eig_tol: number > 0 [1e-10] (Lanczos residual in the last stage; 1e-5 or eig_tol before)
     analysis:
       renyi: [number > 0 or "inf"] [[1, 2, 3, inf]]    cuts: all | [1..sites-1] [all]
       flux_points: int >= 3 [65]   spectrum_levels: int >= 1 [20]

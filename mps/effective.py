@@ -76,10 +76,11 @@ class TwoSiteOperator:
     plain vector space; the structure (legs, total charge) is fixed at construction.
     """
 
-    def __init__(self, left, w1, w2, right, template: BlockTensor):
+    def __init__(self, left: BlockTensor, pair: BlockTensor, right: BlockTensor, template: BlockTensor):
+        """``pair`` is the merged MPO of the two sites (:func:`merge_pair`)."""
         self.legs, self.charge = template.legs, template.charge
         self.chain = PlannedChain(template, [(left, (0,), (2,), False),
-                                             (merge_pair(w1, w2), (1, 2, 3), (0, 1, 2), True),
+                                             (pair, (1, 2, 3), (0, 1, 2), True),
                                              (right, (1, 4), (2, 1), True)])
         if self.chain.out_legs != self.legs or self.chain.out_charge != self.charge:
             raise RuntimeError("effective Hamiltonian changes the block structure")

@@ -24,7 +24,7 @@ import numpy as np
 
 from mps.contract import contract
 from mps.decompose import scale_leg, svd
-from mps.effective import TwoSiteOperator, grow_left, grow_right, left_boundary, right_boundary
+from mps.effective import TwoSiteOperator, grow_left, merge_pair, grow_right, left_boundary, right_boundary
 from mps.krylov import lowest_eigenpair
 from mps.mpo import Mpo
 from mps.state import BondSpectrum, ChainState, canonicalize, product_state, random_state
@@ -51,7 +51,7 @@ class SweepSettings:
     def lanczos_tol(self, stage: int) -> float:
         """Residual tolerance of the eigensolver: ``eig_tol`` in the last stage (it sets the
         accuracy of the final state, hence of every Schmidt value), looser before."""
-        return self.eig_tol if stage == len(self.stages) - 1 else max(self.eig_tol, 1e-7)
+        return self.eig_tol if stage == len(self.stages) - 1 else max(self.eig_tol, 1e-5)
 
 
 @dataclass(frozen=True)
@@ -104,6 +104,7 @@ class GroundStateSearch:
         self.state = state if state.center == 0 else canonicalize(state, 0)
         self.lefts: list[BlockTensor | None] = [None] * state.sites
         self.rights: list[BlockTensor | None] = [None] * state.sites
+        self._pairs: dict[int, BlockTensor] = {}
         self._build_environments()
 
     # ------------------------------------------------------------------ environments
@@ -119,7 +120,9 @@ class GroundStateSearch:
     def _optimize(self, j: int, stage: Stage, tol: float):
         ts, ws = self.state.tensors, self.mpo.tensors
         theta = contract(ts[j], ts[j + 1], (2,), (0,))
-        op = TwoSiteOperator(self.lefts[j], ws[j], ws[j + 1], self.rights[j + 1], theta)
+        if j not in self._pairs:
+            self._pairs[j] = merge_pair(ws[j], ws[j + 1])
+        op = TwoSiteOperator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
         res = lowest_eigenpair(op.matvec, theta.data.astype(op.dtype, copy=False),
                                krylov_dim=self.settings.krylov_dim, tol=tol, rng=self.rng)
         theta = _noise(op.wrap(res.vector), stage.noise, self.rng)
