@@ -13,6 +13,7 @@ never overwritten. Nothing is unpickled: only numeric arrays and JSON text are s
 from __future__ import annotations
 
 import hashlib
+import math
 import json
 import os
 from dataclasses import asdict
@@ -78,7 +79,9 @@ def save_checkpoint(path: str | os.PathLike, state: ChainState, progress: Progre
         "format": FORMAT, "format_version": FORMAT_VERSION, "model_hash": model_hash,
         "solver_hash": solver_hash, "sites": state.sites, "center": state.center,
         "sweep": progress.sweep, "stage": progress.stage, "in_stage": progress.in_stage,
-        "energy": progress.energy, "converged": progress.converged,
+        "energy": progress.energy, "converged": progress.converged, "step": progress.step,
+        "step_truncation": progress.step_truncation, "step_energy": progress.step_energy,
+        "step_seconds": progress.step_seconds,
         "history": [asdict(r) for r in progress.history], "rng_state": rng_state,
     }
     meta_text = json.dumps(meta)
@@ -130,8 +133,10 @@ def load_checkpoint(path: str | os.PathLike) -> tuple[ChainState, Progress, dict
         state = _state_from(arrays, meta)
     except (KeyError, ValueError) as exc:
         raise CheckpointError(f"{path}: inconsistent checkpoint ({exc})") from None
-    progress = Progress(meta["sweep"], meta["stage"], meta["in_stage"], float(meta["energy"]),
-                        bool(meta["converged"]), [SweepRecord(**r) for r in meta["history"]])
+    progress = Progress(meta["sweep"], meta["stage"], meta["in_stage"], _number(meta["energy"]),
+                        bool(meta["converged"]), [SweepRecord(**r) for r in meta["history"]],
+                        int(meta["step"]), float(meta["step_truncation"]), _number(meta["step_energy"]),
+                        float(meta["step_seconds"]))
     return state, progress, meta["rng_state"], meta
 
 
@@ -158,3 +163,7 @@ def _state_from(arrays: dict[str, np.ndarray], meta: dict) -> ChainState:
             spectra[b] = BondSpectrum(tuple(tuple(int(c) for c in q) for q in arrays[f"spectra/{b}/charges"]),
                                       tuple(values))
     return ChainState(tensors, int(meta["center"]), spectra)
+
+
+def _number(x) -> float:
+    return math.nan if x is None else float(x)

@@ -13,7 +13,9 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+import signal
 import sys
+import threading
 import time
 from dataclasses import replace
 from pathlib import Path
@@ -27,7 +29,8 @@ from mps.mpo import Mpo, OperatorError, build_mpo
 from mps.rundir import CHECKPOINT, CONFIG, SUMMARY, SWEEPS, RunLock, write_json, write_table, write_text
 from mps.state import product_state, random_state
 from mps.tables import entanglement_tables, write_tables
-from mps.sweep import GroundStateSearch, Progress, Stage, SweepSettings, energy_and_variance
+from mps.sweep import (GroundStateSearch, Progress, Stage, SweepSettings, SweepStopped,
+                       energy_and_variance)
 
 SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds"]
 
@@ -101,6 +104,34 @@ def _history_rows(progress: Progress) -> list[list]:
 
 
 # ----------------------------------------------------------------------------- the search
+class StopRequest:
+    """First Ctrl-C: finish the current bond, checkpoint and stop. Second Ctrl-C: stop at once
+    (the checkpoint of the last finished sweep or bond stays on disk)."""
+
+    def __init__(self, show: ProgressLine):
+        self.requested = False
+        self.show = show
+        self.previous = None
+
+    def __enter__(self) -> "StopRequest":
+        if threading.current_thread() is threading.main_thread():
+            self.previous = signal.signal(signal.SIGINT, self._handle)
+        return self
+
+    def _handle(self, signum, frame) -> None:
+        if self.requested:
+            raise KeyboardInterrupt
+        self.requested = True
+        self.show.say("\nstopping after the current bond to save a checkpoint (Ctrl-C again to quit now)")
+
+    def __call__(self) -> bool:
+        return self.requested
+
+    def __exit__(self, *exc) -> None:
+        if self.previous is not None:
+            signal.signal(signal.SIGINT, self.previous)
+
+
 def _search(directory: Path, cfg: RunConfig, search: GroundStateSearch, rng: np.random.Generator,
             show: ProgressLine) -> int:
     """Sweep to the end, checkpointing after each sweep; returns the exit code."""
@@ -110,17 +141,27 @@ def _search(directory: Path, cfg: RunConfig, search: GroundStateSearch, rng: np.
     def on_bond(step, steps):
         show.bond(step, steps, sweep_no)
 
-    try:
-        for rec in search.run(on_bond=on_bond):
-            save_checkpoint(directory / CHECKPOINT, search.state, search.progress,
-                            rng.bit_generator.state, mhash, shash)
-            write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
-            show.sweep(rec, sum(1 for _ in search.progress.history))
-            sweep_no = rec.sweep + 1
-    except KeyboardInterrupt:
-        show.say(f"\ninterrupted; the checkpoint after sweep {search.progress.sweep} is in "
-                 f"{directory / CHECKPOINT}. Continue with: chargewise resume {directory}")
-        return 130
+    def checkpoint():
+        save_checkpoint(directory / CHECKPOINT, search.state, search.progress,
+                        rng.bit_generator.state, mhash, shash)
+
+    with StopRequest(show) as stop:
+        try:
+            for rec in search.run(on_bond=on_bond, should_stop=stop):
+                checkpoint()
+                write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
+                show.sweep(rec, len(search.progress.history))
+                sweep_no = rec.sweep + 1
+        except SweepStopped:
+            checkpoint()
+            show.say(f"interrupted; saved a checkpoint after bond step {search.progress.step} of sweep "
+                     f"{search.progress.sweep + 1} in {directory / CHECKPOINT}. "
+                     f"Continue with: chargewise resume {directory}")
+            return 130
+        except KeyboardInterrupt:
+            show.say(f"\ninterrupted; the last checkpoint in {directory / CHECKPOINT} is kept. "
+                     f"Continue with: chargewise resume {directory}")
+            return 130
     return 0
 
 
@@ -202,7 +243,8 @@ def resume(directory: str) -> int:
         rng = _rng_from(rng_state, cfg.solver.seed)
         search = GroundStateSearch(mpo, state, settings, rng, progress)
         show = ProgressLine(settings)
-        show.say(f"{cfg.name}: resuming after sweep {progress.sweep} (stage {progress.stage + 1})")
+        where = f", bond step {progress.step}" if progress.step else ""
+        show.say(f"{cfg.name}: resuming after sweep {progress.sweep}{where} (stage {progress.stage + 1})")
         t0 = time.perf_counter()
         code = _search(directory, cfg, search, rng, show)
         if code:

@@ -72,7 +72,9 @@ class SweepRecord:
 
 @dataclass
 class Progress:
-    """Resumable position of a search: sweeps done, current stage and sweeps done in it."""
+    """Resumable position of a search: sweeps done, current stage and sweeps done in it, and for
+    a sweep stopped half way the bond steps already done in it (with their worst truncation,
+    last energy and time)."""
 
     sweep: int = 0
     stage: int = 0
@@ -80,6 +82,15 @@ class Progress:
     energy: float = math.nan
     converged: bool = False
     history: list = field(default_factory=list)
+    step: int = 0
+    step_truncation: float = 0.0
+    step_energy: float = math.nan
+    step_seconds: float = 0.0
+
+
+class SweepStopped(Exception):
+    """Raised by :meth:`GroundStateSearch.run` when asked to stop: the state, environments and
+    progress are consistent at a bond boundary, so a checkpoint taken now resumes exactly."""
 
 
 def _noise(theta: BlockTensor, amount: float, rng: np.random.Generator) -> BlockTensor:
@@ -101,7 +112,9 @@ class GroundStateSearch:
             raise ValueError("two-site sweeps need at least two sites")
         self.mpo, self.settings, self.rng = mpo, settings, rng
         self.progress = progress or Progress()
-        self.state = state if state.center == 0 else canonicalize(state, 0)
+        if self.progress.step == 0 and state.center != 0:
+            state = canonicalize(state, 0)
+        self.state = state
         self.lefts: list[BlockTensor | None] = [None] * state.sites
         self.rights: list[BlockTensor | None] = [None] * state.sites
         self._pairs: dict[int, BlockTensor] = {}
@@ -109,11 +122,14 @@ class GroundStateSearch:
 
     # ------------------------------------------------------------------ environments
     def _build_environments(self) -> None:
+        """Left environments up to the orthogonality centre, right environments down to it."""
         ts, ws = self.state.tensors, self.mpo.tensors
-        n = self.state.sites
+        n, c = self.state.sites, self.state.center
         self.lefts[0] = left_boundary(ws[0].legs[0], ts[0].legs[0])
         self.rights[n - 1] = right_boundary(ws[-1].legs[3], ts[-1].legs[2])
-        for j in range(n - 1, 0, -1):
+        for j in range(c):
+            self.lefts[j + 1] = grow_left(self.lefts[j], ts[j], ws[j])
+        for j in range(n - 1, c, -1):
             self.rights[j - 1] = grow_right(self.rights[j], ts[j], ws[j])
 
     # ------------------------------------------------------------------ one bond
@@ -133,18 +149,21 @@ class GroundStateSearch:
         self.state.spectra[j + 1] = BondSpectrum(cut.bond.charges, values)
         return res.value, cut, values
 
-    def _sweep(self, stage: Stage, on_bond: Callable[[int, int], None] | None) -> tuple[float, float]:
+    def _sweep(self, stage: Stage, on_bond, should_stop) -> tuple[float, float]:
+        """One sweep (left to right and back), starting at bond step ``progress.step``."""
         n = self.state.sites
         ts, ws = self.state.tensors, self.mpo.tensors
-        tol = self.settings.lanczos_tol(self.progress.stage)
-        worst = 0.0
-        energy = math.nan
+        p = self.progress
+        tol = self.settings.lanczos_tol(p.stage)
         steps = 2 * (n - 1)
-        for step, j in enumerate(list(range(n - 1)) + list(range(n - 2, -1, -1))):
-            moving_right = step < n - 1
+        order = list(range(n - 1)) + list(range(n - 2, -1, -1))
+        energy, worst = p.step_energy, p.step_truncation
+        t0 = time.perf_counter() - p.step_seconds
+        for step in range(p.step, steps):
+            j = order[step]
             energy, cut, values = self._optimize(j, stage, tol)
             worst = max(worst, cut.discarded)
-            if moving_right:
+            if step < n - 1:
                 ts[j] = cut.u
                 ts[j + 1] = scale_leg(cut.vh, 0, values)
                 self.lefts[j + 1] = grow_left(self.lefts[j], ts[j], ws[j])
@@ -156,14 +175,22 @@ class GroundStateSearch:
                 self.state.center = j
             if on_bond is not None:
                 on_bond(step + 1, steps)
-        return energy, worst
+            if should_stop is not None and step + 1 < steps and should_stop():
+                p.step, p.step_truncation, p.step_energy = step + 1, worst, energy
+                p.step_seconds = time.perf_counter() - t0
+                raise SweepStopped(f"stopped after bond step {step + 1} of {steps} in sweep {p.sweep + 1}")
+        p.step, p.step_truncation, p.step_energy, p.step_seconds = 0, 0.0, math.nan, 0.0
+        return energy, worst, time.perf_counter() - t0
 
     # ------------------------------------------------------------------ driver
-    def run(self, on_bond: Callable[[int, int], None] | None = None) -> Iterator[SweepRecord]:
+    def run(self, on_bond: Callable[[int, int], None] | None = None,
+            should_stop: Callable[[], bool] | None = None) -> Iterator[SweepRecord]:
         """Sweep through the remaining stages, yielding a record after every full sweep.
 
         A stage ends after its number of sweeps; the last stage also ends as soon as the energy
-        changes by less than ``energy_tol`` from one sweep to the next (converged).
+        changes by less than ``energy_tol`` from one sweep to the next (converged). When
+        ``should_stop()`` turns true the sweep stops after the current bond and
+        :class:`SweepStopped` is raised, with ``progress`` pointing at the next bond.
         """
         stages = self.settings.stages
         p = self.progress
@@ -172,8 +199,7 @@ class GroundStateSearch:
             if p.in_stage >= stage.sweeps:
                 p.stage, p.in_stage = p.stage + 1, 0
                 continue
-            t0 = time.perf_counter()
-            energy, worst = self._sweep(stage, on_bond)
+            energy, worst, seconds = self._sweep(stage, on_bond, should_stop)
             delta = energy - p.energy if math.isfinite(p.energy) else math.nan
             last = p.stage == len(stages) - 1
             p.converged = bool(last and stage.noise == 0 and math.isfinite(delta)
@@ -183,7 +209,7 @@ class GroundStateSearch:
             p.energy = energy
             spectra = [s for s in self.state.spectra if s is not None]
             rec = SweepRecord(p.sweep, p.stage, stage.bond, energy, delta, worst,
-                              max(s.entropy() for s in spectra), time.perf_counter() - t0,
+                              max(s.entropy() for s in spectra), seconds,
                               max(self.state.bond_dims), p.converged)
             p.history.append(rec)
             yield rec

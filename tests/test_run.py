@@ -82,8 +82,8 @@ def test_interrupted_run_resumes_to_the_same_energy(tmp_path, monkeypatch):
     assert runner.run(str(cfg), str(tmp_path / "whole")) == 0
     original = GroundStateSearch.run
 
-    def interrupted(self, on_bond=None):
-        for k, rec in enumerate(original(self, on_bond)):
+    def interrupted(self, on_bond=None, should_stop=None):
+        for k, rec in enumerate(original(self, on_bond, should_stop)):
             yield rec
             if k == 2:
                 raise KeyboardInterrupt
@@ -115,10 +115,44 @@ def test_ctrl_c_keeps_last_checkpoint_and_says_how_to_resume(tmp_path):
     proc.send_signal(signal.SIGINT)
     _, err = proc.communicate(timeout=120)
     assert proc.returncode == 130, err
-    assert "chargewise resume" in err and "Traceback" not in err
+    assert "saved a checkpoint after bond step" in err and "chargewise resume" in err
+    assert "Traceback" not in err
     state, progress, _, _ = load_checkpoint(out / "state.h5")
-    assert progress.sweep >= 1 and state.sites == 24
+    assert progress.sweep >= 1 and progress.step > 0 and state.sites == 24
     assert not (out / ".lock").exists()
+    res = cli("resume", out, timeout=600)
+    assert res.returncode == 0, res.stderr
+
+
+def test_a_sweep_stopped_half_way_resumes_exactly(tmp_path):
+    # A search stopped after any bond step, checkpointed, reloaded and continued reproduces the
+    # uninterrupted search (same random numbers, same environments).
+    import numpy as np
+    from chains import solve
+    from mps.checkpoint import save_checkpoint
+    from mps.sweep import Stage, SweepSettings, SweepStopped
+
+    settings = SweepSettings((Stage(8, 2, 1e-4), Stage(32, 4, 0.0)), discard=1e-14, energy_tol=1e-13)
+    couplings = CONFIG["model"]["couplings"]
+    _, whole = solve("xxz", 12, couplings, {"Sz": 0}, settings, seed=11)
+    mpo, _ = solve("xxz", 12, couplings, {"Sz": 0}, SweepSettings((Stage(2, 1),)), seed=11)
+    from mps.state import random_state
+    rng = np.random.default_rng(11)
+    search = GroundStateSearch(mpo, random_state(mpo.phys, 12, (0,), 16, rng), settings, rng)
+    calls = iter(range(10**6))
+    with pytest.raises(SweepStopped):
+        for _ in search.run(should_stop=lambda: next(calls) == 30):
+            pass
+    assert search.progress.step == 10 and search.progress.sweep == 1   # 21 checks per 22-step sweep
+    save_checkpoint(tmp_path / "s.h5", search.state, search.progress, rng.bit_generator.state, "m", "s")
+    state, progress, rng_state, _ = load_checkpoint(tmp_path / "s.h5")
+    rng2 = np.random.default_rng()
+    rng2.bit_generator.state = rng_state
+    again = GroundStateSearch(mpo, state, settings, rng2, progress)
+    for _ in again.run():
+        pass
+    assert again.progress.sweep == whole.progress.sweep
+    assert again.progress.energy == pytest.approx(whole.progress.energy, abs=1e-12)
 
 
 def test_resume_refuses_a_changed_model(tmp_path):
