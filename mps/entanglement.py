@@ -23,12 +23,11 @@ result describes the normalised state. All sums are done on logarithms of the we
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass
 
 import numpy as np
 from scipy.special import logsumexp
 
-from mps.resolved import CutResolved
+from mps.resolved import CutResolved, JointResolved
 
 Spectrum = Mapping[tuple[int, ...], np.ndarray]
 
@@ -69,43 +68,6 @@ def renyi_entropy(log_weights: np.ndarray, n: float) -> float:
         t = np.dot(pi, np.expm1((n - 1.0) * log_pi)) / pi.sum()
         return float(np.log1p(t) / (1.0 - n))
     return float(logsumexp(n * log_pi) / (1.0 - n))
-
-
-@dataclass(frozen=True)
-class JointResolved:
-    """Entanglement resolved by the full charge vector (k >= 2 charges) of the left block.
-
-    Same content as :class:`mps.resolved.CutResolved`, except that ``charges`` is a
-    (nsec, k) array of physical charge vectors (rows in lexicographic order) and the charged
-    moments are taken at flux vectors: ``moments[i, a] = Tr[rho^n e^{i fluxes[a] . Q_A}] /
-    Tr[rho^n]`` for n = ``renyi[i]``.
-    """
-
-    cut: int
-    charges: np.ndarray
-    probability: np.ndarray
-    counts: np.ndarray
-    renyi: tuple[float, ...]
-    entropy: np.ndarray
-    sector_entropy: np.ndarray
-    fluxes: np.ndarray
-    moments: np.ndarray
-    floor: float
-
-    @property
-    def number_entropy(self) -> float:
-        """S_number = -sum_q p(q) log p(q) over joint sectors."""
-        p = self.probability[self.probability > 0]
-        return float(-np.dot(p, np.log(p)))
-
-    @property
-    def config_entropy(self) -> float:
-        """S_config = sum_q p(q) S_1(q) over joint sectors above the floor."""
-        if 1.0 not in self.renyi:
-            raise ValueError("configurational entropy needs the von Neumann index n = 1")
-        s1 = self.sector_entropy[self.renyi.index(1.0)]
-        ok = ~np.isnan(s1)
-        return float(np.dot(self.probability[ok], s1[ok]))
 
 
 def resolve_cut(

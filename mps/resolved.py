@@ -16,8 +16,27 @@ from dataclasses import dataclass
 import numpy as np
 
 
+class SectorWeights:
+    """Number and configurational entropy, shared by the per-charge and joint records."""
+
+    @property
+    def number_entropy(self) -> float:
+        """S_number = -sum_q p(q) log p(q)."""
+        p = self.probability[self.probability > 0]
+        return float(-np.dot(p, np.log(p)))
+
+    @property
+    def config_entropy(self) -> float:
+        """S_config = sum_q p(q) S_1(q), over sectors above the floor (exact when the floor is 0)."""
+        if 1.0 not in self.renyi:
+            raise ValueError("configurational entropy needs the von Neumann index n = 1")
+        s1 = self.sector_entropy[self.renyi.index(1.0)]
+        ok = ~np.isnan(s1)
+        return float(np.dot(self.probability[ok], s1[ok]))
+
+
 @dataclass(frozen=True)
-class CutResolved:
+class CutResolved(SectorWeights):
     """Charge-resolved entanglement of the left block of ``cut`` sites.
 
     Attributes
@@ -62,17 +81,24 @@ class CutResolved:
             return float(np.dot(p, d**4)) - 3.0 * m2**2
         raise ValueError(f"cumulant order must be 1..4, got {order}")
 
-    @property
-    def number_entropy(self) -> float:
-        """S_number = -sum_q p(q) log p(q)."""
-        p = self.probability[self.probability > 0]
-        return float(-np.dot(p, np.log(p)))
 
-    @property
-    def config_entropy(self) -> float:
-        """S_config = sum_q p(q) S_1(q), over sectors above the floor (exact when the floor is 0)."""
-        if 1.0 not in self.renyi:
-            raise ValueError("configurational entropy needs the von Neumann index n = 1")
-        s1 = self.sector_entropy[self.renyi.index(1.0)]
-        ok = ~np.isnan(s1)
-        return float(np.dot(self.probability[ok], s1[ok]))
+@dataclass(frozen=True)
+class JointResolved(SectorWeights):
+    """Entanglement resolved by the full charge vector (k >= 2 charges) of the left block.
+
+    Same content as :class:`mps.resolved.CutResolved`, except that ``charges`` is a
+    (nsec, k) array of physical charge vectors (rows in lexicographic order) and the charged
+    moments are taken at flux vectors: ``moments[i, a] = Tr[rho^n e^{i fluxes[a] . Q_A}] /
+    Tr[rho^n]`` for n = ``renyi[i]``.
+    """
+
+    cut: int
+    charges: np.ndarray
+    probability: np.ndarray
+    counts: np.ndarray
+    renyi: tuple[float, ...]
+    entropy: np.ndarray
+    sector_entropy: np.ndarray
+    fluxes: np.ndarray
+    moments: np.ndarray
+    floor: float
