@@ -92,3 +92,14 @@ def test_odd_fermion_terms_are_refused():
     fam = get_family("fermions")
     with pytest.raises(OperatorError, match="odd number"):
         build_mpo(fam.space(), 4, [Term(1.0, ((0, "C"),))])
+
+
+def test_hermiticity_check_is_free_of_round_off_on_long_chains():
+    # Long Hermitian chains are accepted (regression: a contraction-based norm of H - H^dagger
+    # once bottomed out at 1e-8 by cancellation); a 1e-6 asymmetry of one hopping is still refused.
+    fam = get_family("fermions")
+    terms = fam.terms(120, dict(t=1.0, V=0.4, mu=0.3, mu_stag=0.1, dimer=0.2))
+    build_mpo(fam.space(), 120, terms)
+    skewed = terms + [Term(1e-6, ((50, "Cdag"), (51, "C")))]
+    with pytest.raises(OperatorError, match="not Hermitian"):
+        build_mpo(fam.space(), 120, skewed)
