@@ -180,7 +180,9 @@ def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: GroundStateSearch
     write_json(directory / SUMMARY, summary)
     show.say(f"E = {energy:.12f} ({energy / cfg.model.sites:.12f} per site), variance {variance:.2e}, "
              f"{'converged' if search.progress.converged else 'NOT converged'} after "
-             f"{search.progress.sweep} sweeps; results in {directory}")
+             f"{search.progress.sweep} sweeps")
+    _compare_and_draw(directory, cfg, search.state, show)
+    show.say(f"results in {directory}")
 
 
 def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict, renyi=None, cuts=None) -> None:
@@ -190,6 +192,29 @@ def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict, renyi
     write_tables(directory, tables)
     summary["weight_floor"] = cfg.analysis.weight_floor
     summary["resolved_by"] = cfg.analysis.resolve
+
+
+def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine) -> None:
+    """comparison.json (fits, exact free fermions) and the plots, for an analysed run."""
+    from mps.comparison import write_comparison
+
+    report = write_comparison(directory, cfg, state)
+    c = (report.get("central_charge") or {}).get("value")
+    k = (report.get("luttinger") or {}).get("value")
+    xi = (report.get("correlation_length") or {}).get("xi")
+    line = "fits: " + ", ".join(
+        f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k), ("correlation length", xi))
+        if value is not None)
+    exact = report.get("exact") or {}
+    dev = (exact.get("max_deviation") or {}).get("probability") if isinstance(exact, dict) else None
+    if isinstance(dev, dict) and dev.get("value") is not None:
+        line += f"; max |p(q) - exact| = {dev['value']:.1e}"
+    if cfg.output.plots:
+        from mps.plots import draw_all
+
+        drawn = draw_all(directory)
+        line += f"; {len(drawn)} plots in {directory / 'plots'}"
+    show.say(line)
 
 
 # ----------------------------------------------------------------------------- verbs
@@ -283,3 +308,12 @@ def bench(quick: bool = False) -> int:
     from mps.bench import main as bench_main
 
     return bench_main(quick)
+
+
+def compare(directory: str) -> int:
+    """Redo the fits, the exact free-fermion comparison and the plots of a finished run."""
+    directory = Path(directory)
+    cfg, state, _ = load_run(directory)
+    with RunLock(directory):
+        _compare_and_draw(directory, cfg, state, ProgressLine(sweep_settings(cfg)))
+    return 0
