@@ -13,7 +13,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-import scipy.linalg as sla
 
 
 @dataclass(frozen=True)
@@ -56,8 +55,8 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
             w = w - basis[:m + 1].T @ (basis[:m + 1].conj() @ w)
             w = w - basis[:m + 1].T @ (basis[:m + 1].conj() @ w)
             b = float(np.linalg.norm(w))
-            evals, evecs = sla.eigh_tridiagonal(np.array(alpha), np.array(beta)) if m else \
-                (np.array(alpha), np.ones((1, 1)))
+            tri = np.diag(alpha) + np.diag(beta, 1) + np.diag(beta, -1)
+            evals, evecs = np.linalg.eigh(tri)   # tiny; numpy's LAPACK keeps one thread pool busy
             value = float(evals[0])
             resid = abs(b * evecs[-1, 0])
             if resid < tol or b < 1e-14 or m == m_max - 1 or m == n - 1:
