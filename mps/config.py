@@ -24,6 +24,8 @@ Schema (defaults in brackets; unknown keys at any level are refused)::
       renyi: [number > 0 or "inf"] [[1, 2, 3, inf]]    cuts: all | [1..sites-1] [all]
       flux_points: int >= 3 [65]   spectrum_levels: int >= 1 [20]
       weight_floor: number in [0, 1) [1e-12]   resolve: charge name | joint [first charge]
+      fit_window: auto | [lo, hi] cuts used by the field-theory fits [auto: L/8 .. 7L/8]
+      correlations: bool, measure charge correlations and the correlation length [true]
     output:
       dir: str [runs/<name>, relative to the working directory]   plots: bool [true]
 
@@ -142,6 +144,8 @@ class AnalysisConfig:
     spectrum_levels: int
     weight_floor: float
     resolve: str
+    fit_window: tuple[int, int] | None = None
+    correlations: bool = True
 
     def cut_list(self, sites: int) -> list[int]:
         """The cuts to analyse (left-block sizes), ``"all"`` expanded to 1..sites-1."""
@@ -155,6 +159,8 @@ class AnalysisConfig:
             "spectrum_levels": self.spectrum_levels,
             "weight_floor": self.weight_floor,
             "resolve": self.resolve,
+            "fit_window": "auto" if self.fit_window is None else list(self.fit_window),
+            "correlations": self.correlations,
         }
 
 
@@ -255,7 +261,8 @@ _TOP = ("name", "model", "solver", "analysis", "output")
 _MODEL = ("family", "sites", "couplings", "charge")
 _SOLVER = ("stages", "discard", "energy_tol", "seed", "krylov_dim", "eig_tol", "init")
 _STAGE = ("bond", "sweeps", "noise")
-_ANALYSIS = ("renyi", "cuts", "flux_points", "spectrum_levels", "weight_floor", "resolve")
+_ANALYSIS = ("renyi", "cuts", "flux_points", "spectrum_levels", "weight_floor", "resolve", "fit_window",
+             "correlations")
 _OUTPUT = ("dir", "plots")
 
 DEFAULT_STAGES = ((32, 2), (128, 6))
@@ -428,7 +435,27 @@ def _analysis(sec: Mapping[str, Any], model: ModelConfig) -> AnalysisConfig:
             sec.get("weight_floor", 1e-12), "analysis.weight_floor", lo=0.0, hi=1.0, hi_open=True
         ),
         resolve=resolve,
+        fit_window=_fit_window(sec.get("fit_window"), model.sites),
+        correlations=_boolean(sec.get("correlations", True), "analysis.correlations"),
     )
+
+
+def _fit_window(raw: Any, sites: int) -> tuple[int, int] | None:
+    """Cuts (lo, hi) the field-theory fits use; None for the default L/8 .. 7L/8."""
+    if raw is None or raw == "auto":
+        return None
+    where = "analysis.fit_window"
+    if (not isinstance(raw, list) or len(raw) != 2 or not all(_is_int(v) for v in raw)
+            or not 1 <= raw[0] < raw[1] <= sites - 1 or raw[1] - raw[0] < 3):
+        raise ConfigError(where, f"must be auto or [lo, hi] with 1 <= lo, lo + 3 <= hi <= {sites - 1}, "
+                                 f"got {_show(raw)}")
+    return int(raw[0]), int(raw[1])
+
+
+def _boolean(raw: Any, where: str) -> bool:
+    if not isinstance(raw, bool):
+        raise ConfigError(where, f"must be true or false, got {_show(raw)}")
+    return raw
 
 
 def _cuts(raw: Any, sites: int) -> str | tuple[int, ...]:

@@ -196,9 +196,10 @@ def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict, renyi
 
 def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine) -> None:
     """comparison.json (fits, exact free fermions) and the plots, for an analysed run."""
-    from mps.comparison import write_comparison
+    from mps.comparison import ComparisonSettings, write_comparison
 
-    report = write_comparison(directory, cfg, state)
+    settings = ComparisonSettings(window=cfg.analysis.fit_window, correlations=cfg.analysis.correlations)
+    report = write_comparison(directory, cfg, state, settings)
     c = (report.get("central_charge") or {}).get("value")
     k = (report.get("luttinger") or {}).get("value")
     xi = (report.get("correlation_length") or {}).get("xi")

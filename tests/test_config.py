@@ -343,3 +343,23 @@ def test_reachable_charges_matches_enumeration(local, sites):
     brute = {tuple(np.sum(c, axis=0)) for c in itertools.product(local, repeat=sites)}
     got = reachable_charges(local, sites)
     assert {tuple(r) for r in got} == brute and len(got) == len(brute)
+
+
+@pytest.mark.parametrize("raw, ok", [
+    ("auto", True), ([4, 28], True), ([0, 10], False), ([10, 12], False), ([4, 40], False),
+    ("wide", False), ([4.5, 20], False),
+])
+def test_fit_window_is_checked(raw, ok):
+    data = {"model": {"family": "xxz", "sites": 32}, "analysis": {"fit_window": raw}}
+    if ok:
+        assert parse_config(data).analysis.to_dict()["fit_window"] == raw
+    else:
+        with pytest.raises(ConfigError, match="analysis.fit_window"):
+            parse_config(data)
+
+
+def test_correlations_switch_must_be_boolean():
+    with pytest.raises(ConfigError, match="analysis.correlations"):
+        parse_config({"model": {"family": "xxz", "sites": 8}, "analysis": {"correlations": "yes"}})
+    assert parse_config({"model": {"family": "xxz", "sites": 8},
+                         "analysis": {"correlations": False}}).analysis.correlations is False
