@@ -188,9 +188,10 @@ def _packed(data: np.ndarray, gather: np.ndarray | None) -> np.ndarray:
     return data if gather is None else np.take(data, gather)
 
 
-def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype) -> np.ndarray:
+def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype,
+                out: np.ndarray | None = None) -> np.ndarray:
     """All group products of packed operands, into a packed buffer ending with one zero."""
-    pc = np.empty(plan.packed_size + 1, dtype=dtype)
+    pc = np.empty(plan.packed_size + 1, dtype=dtype) if out is None else out
     pc[-1] = 0
     for g in plan.groups:
         np.matmul(pa[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
@@ -200,8 +201,10 @@ def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype) ->
 
 
 def unpack(plan: ContractionPlan, pc: np.ndarray) -> np.ndarray:
-    """Flat data of the result from the packed products."""
-    return pc[:plan.packed_size] if plan.out_from_packed is None else np.take(pc, plan.out_from_packed)
+    """Flat data of the result (a new array) from the packed products."""
+    if plan.out_from_packed is None:
+        return pc[:plan.packed_size].copy()
+    return np.take(pc, plan.out_from_packed)
 
 
 def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
@@ -210,7 +213,8 @@ def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
     pc = gemm_groups(plan, _packed(a.data, plan.gather_a), _packed(b.data, plan.gather_b), dtype)
     if not plan.out_legs:
         return pc[:-1].sum() if plan.packed_size else dtype.type(0)
-    return BlockTensor(plan.out_legs, plan.out_charge, unpack(plan, pc))
+    data = pc[:plan.packed_size] if plan.out_from_packed is None else np.take(pc, plan.out_from_packed)
+    return BlockTensor(plan.out_legs, plan.out_charge, data)
 
 
 class PlannedChain:
@@ -250,19 +254,25 @@ class PlannedChain:
                 self.gathers.append(prev.out_from_packed[nxt])
         self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants])
 
+        # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
+        # every application
+        self._packed_in = [np.empty(g.size if g is not None else 0, dtype=self.dtype) for g in self.gathers]
+        self._products = [np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
+
     @property
     def flops(self) -> int:
         return sum(p.flops for p in self.plans)
 
     def __call__(self, data: np.ndarray) -> np.ndarray:
         """Flat data of the final result for the running tensor's flat ``data``."""
-        x = _packed(data, self.gathers[0])
+        x = data
+        last = len(self.plans) - 1
         for k, plan in enumerate(self.plans):
-            if k:
-                x = x if self.gathers[k] is None else np.take(x, self.gathers[k])
+            if self.gathers[k] is not None:
+                x = np.take(x, self.gathers[k], out=self._packed_in[k], mode="clip")  # unbuffered
             a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
-            x = gemm_groups(plan, a, b, self.dtype)
-            if k == len(self.plans) - 1:
+            x = gemm_groups(plan, a, b, self.dtype, self._products[k])
+            if k == last:
                 return unpack(plan, x)
             if self.gathers[k + 1] is None and plan.out_from_packed is None:
                 x = x[:plan.packed_size]
