@@ -47,6 +47,7 @@ class SweepSettings:
     energy_tol: float = 1e-9
     krylov_dim: int = 24
     eig_tol: float = 1e-10
+    krylov_restarts: int = 4
 
     def lanczos_tol(self, stage: int) -> float:
         """Residual tolerance of the eigensolver: ``eig_tol`` in the last stage (it sets the
@@ -140,7 +141,8 @@ class GroundStateSearch:
             self._pairs[j] = merge_pair(ws[j], ws[j + 1])
         op = TwoSiteOperator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
         res = lowest_eigenpair(op.matvec, theta.data.astype(op.dtype, copy=False),
-                               krylov_dim=self.settings.krylov_dim, tol=tol, rng=self.rng)
+                               krylov_dim=self.settings.krylov_dim, tol=tol,
+                               max_restarts=self.settings.krylov_restarts, rng=self.rng)
         theta = _noise(op.wrap(res.vector), stage.noise, self.rng)
         cut = svd(theta, (0, 1), (2, 3), max_bond=stage.bond, discard=self.settings.discard,
                   min_value=1e-15)
