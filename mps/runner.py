@@ -1,11 +1,11 @@
-"""What the command-line verbs do: run, resume and analyse a ground-state search in a run directory.
+"""What the command-line verbs do with a run directory: run, resume, analyze, compare, bench.
 
 ``run`` validates the config, builds the operator (refusing non-conserving or non-Hermitian
 chains before any solving), sweeps stage by stage with a checkpoint after every sweep, then
-writes the summary and the entanglement tables. ``resume`` continues from the last checkpoint;
-the solver section of the run's config.yaml may be extended (more stages, larger bonds) but the
-model may not change. Ctrl-C stops after telling how to resume; the last completed sweep is
-always on disk.
+writes the summary, the entanglement tables, comparison.json and the plots. ``resume``
+continues from the last checkpoint; the solver section of the run's config.yaml may be extended
+(more stages, larger bonds) but the model may not change. The first Ctrl-C finishes the current
+bond and checkpoints there; a second one quits at once, keeping the last checkpoint.
 """
 
 from __future__ import annotations
