@@ -217,3 +217,44 @@ def test_non_hermitian_or_non_conserving_chains_never_start(tmp_path):
               "--out", tmp_path / "x")
     assert res.returncode == 2 and "model.charge" in res.stderr
     assert not (tmp_path / "x" / "state.h5").exists()
+
+
+@pytest.fixture(scope="module")
+def finished_run(tmp_path_factory):
+    tmp = tmp_path_factory.mktemp("finished")
+    out = tmp / "run"
+    res = cli("run", write_config(tmp), "--out", out)
+    assert res.returncode == 0, res.stderr
+    return out
+
+
+def test_run_writes_tables_comparison_and_plots(finished_run):
+    for name in ("entropies.csv", "sectors.csv", "moments.csv", "spectrum.csv", "comparison.json"):
+        assert (finished_run / name).is_file(), name
+    plots = sorted(p.name for p in (finished_run / "plots").glob("*.png"))
+    assert "entropy_profile.png" in plots and "charge_distribution.png" in plots
+
+
+def test_analyze_recomputes_requested_renyi_indices_and_cuts(finished_run):
+    res = cli("analyze", finished_run, "--renyi", "1,0.5,inf", "--cuts", "3,6")
+    assert res.returncode == 0, res.stderr
+    rows = (finished_run / "entropies.csv").read_text().splitlines()
+    assert rows[0].startswith("cut,S_1,S_0.5,S_inf,charge_mean")
+    assert [r.split(",")[0] for r in rows[1:]] == ["3", "6"]
+    bad = cli("analyze", finished_run, "--cuts", "40")
+    assert bad.returncode == 2 and "Traceback" not in bad.stderr
+
+
+def test_compare_redoes_fits_and_plots(finished_run):
+    (finished_run / "comparison.json").unlink()
+    res = cli("compare", finished_run)
+    assert res.returncode == 0, res.stderr
+    report = json.loads((finished_run / "comparison.json").read_text())
+    assert "central_charge" in report and "luttinger" in report
+
+
+@pytest.mark.parametrize("path", sorted((Path(__file__).parents[1] / "configs").glob("*.yaml")),
+                         ids=lambda p: p.stem)
+def test_every_shipped_config_validates(path):
+    res = cli("check", path)
+    assert res.returncode == 0, res.stderr
