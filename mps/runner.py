@@ -203,9 +203,11 @@ def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine
     c = (report.get("central_charge") or {}).get("value")
     k = (report.get("luttinger") or {}).get("value")
     xi = (report.get("correlation_length") or {}).get("xi")
-    line = "fits: " + ", ".join(
-        f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k), ("correlation length", xi))
-        if value is not None)
+    line = "fits: " + ", ".join(f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k))
+                                if value is not None)
+    if report.get("correlation_length"):
+        line += (f", correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
+                 else ", no exponential decay of charge correlations")
     exact = report.get("exact") or {}
     dev = (exact.get("max_deviation") or {}).get("probability") if isinstance(exact, dict) else None
     if isinstance(dev, dict) and dev.get("value") is not None:
