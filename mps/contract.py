@@ -14,7 +14,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from functools import lru_cache
+from collections import OrderedDict
+from typing import NamedTuple
 
 import numpy as np
 
@@ -92,11 +93,10 @@ def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
                              "contracted legs need the same sectors and opposite flows")
 
 
-@lru_cache(maxsize=24)
-def plan_contraction(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
+def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
                      b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
                      ) -> ContractionPlan:
-    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B (cached)."""
+    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B."""
     _check_pairs(a_legs, axes_a, b_legs, axes_b)
     k = a_legs[0].nq
     free_a = tuple(i for i in range(len(a_legs)) if i not in axes_a)
@@ -145,6 +145,58 @@ def plan_contraction(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a:
             out_from[scatter] = np.arange(scatter.size, dtype=np.intp)
     return ContractionPlan(out_legs, out_charge, tuple(groups), _index(ga, lay_a.size),
                            _index(gb, lay_b.size), out_from, pc, out_size)
+
+
+class CacheInfo(NamedTuple):
+    hits: int
+    misses: int
+    plans: int
+    nbytes: int
+
+
+class PlanCache:
+    """Least-recently-used contraction plans, bounded by the memory of their index arrays.
+
+    Small plans are kept by the hundreds, so sweeps that revisit the same block structures (a
+    converged stage) plan nothing; plans of bond-512 intermediates weigh tens of megabytes, and
+    only a few of those are kept.
+    """
+
+    def __init__(self, build, max_bytes: int):
+        self.build, self.max_bytes = build, max_bytes
+        self.plans: OrderedDict = OrderedDict()
+        self.nbytes = self.hits = self.misses = 0
+
+    @staticmethod
+    def weight(plan: ContractionPlan) -> int:
+        return sum(a.nbytes for a in (plan.gather_a, plan.gather_b, plan.out_from_packed) if a is not None) + 1024
+
+    def __call__(self, *key) -> ContractionPlan:
+        plan = self.plans.get(key)
+        if plan is not None:
+            self.hits += 1
+            self.plans.move_to_end(key)
+            return plan
+        self.misses += 1
+        plan = self.build(*key)
+        self.plans[key] = plan
+        self.nbytes += self.weight(plan)
+        while self.nbytes > self.max_bytes and len(self.plans) > 1:
+            _, old = self.plans.popitem(last=False)
+            self.nbytes -= self.weight(old)
+        return plan
+
+    def cache_info(self) -> CacheInfo:
+        return CacheInfo(self.hits, self.misses, len(self.plans), self.nbytes)
+
+    def cache_clear(self) -> None:
+        self.plans.clear()
+        self.nbytes = 0
+
+
+plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
+"""Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B (cached by structure):
+``plan_contraction(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)``."""
 
 
 def _size(shape) -> int:
