@@ -221,9 +221,5 @@ def reachable_charges(site_charges: np.ndarray, sites: int) -> set[Charge]:
     return reach
 
 
-def product_of_sizes(shape) -> int:
-    return int(np.prod(shape, dtype=np.int64)) if len(shape) else 1
-
-
 __all__ = ["Leg", "FusionMap", "fuse", "leg_from_states", "combined_charges", "encode",
-           "reachable_charges", "product_of_sizes"]
+           "reachable_charges"]

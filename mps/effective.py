@@ -63,12 +63,6 @@ def apply_merged(left: BlockTensor, pair: BlockTensor, right: BlockTensor, theta
     return contract(x, right, (1, 4), (2, 1))        # (l', s1', s2', r')
 
 
-def apply_two_site(left: BlockTensor, w1: BlockTensor, w2: BlockTensor, right: BlockTensor,
-                   theta: BlockTensor) -> BlockTensor:
-    """H_eff theta for the two-site tensor theta (l, s1, s2, r); the result has theta's structure."""
-    return apply_merged(left, merge_pair(w1, w2), right, theta)
-
-
 class TwoSiteOperator:
     """H_eff on the flat data of two-site tensors with a fixed block structure.
 

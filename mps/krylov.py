@@ -46,7 +46,6 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
         basis = np.empty((m_max, n), dtype=x.dtype)
         alpha, beta = [], []
         basis[0] = x
-        hx = None
         for m in range(m_max):
             w = matvec(basis[m])
             apps += 1

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from mps.charges import Leg, reachable_charges
-from mps.decompose import lq, qr, scale_leg
+from mps.decompose import lq, qr
 from mps.contract import contract
 from mps.tensor import BlockTensor
 
@@ -165,8 +165,3 @@ def to_dense_vector(state: ChainState) -> np.ndarray:
     for t in state.tensors[1:]:
         psi = np.tensordot(psi, t.to_dense(), axes=(psi.ndim - 1, 0))
     return psi[..., 0]
-
-
-def absorb_values(t: BlockTensor, axis: int, spectrum: BondSpectrum) -> BlockTensor:
-    """Multiply leg ``axis`` of ``t`` by the Schmidt values of its bond."""
-    return scale_leg(t, axis, spectrum.values)

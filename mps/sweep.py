@@ -17,14 +17,14 @@ from __future__ import annotations
 
 import math
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Callable, Iterator
 
 import numpy as np
 
 from mps.contract import contract
 from mps.decompose import scale_leg, svd
-from mps.effective import TwoSiteOperator, grow_left, merge_pair, grow_right, left_boundary, right_boundary
+from mps.effective import TwoSiteOperator, grow_left, grow_right, left_boundary, merge_pair, right_boundary
 from mps.krylov import lowest_eigenpair
 from mps.mpo import Mpo
 from mps.state import BondSpectrum, ChainState, canonicalize, product_state, random_state
@@ -215,11 +215,6 @@ class GroundStateSearch:
                               max(self.state.bond_dims), p.converged)
             p.history.append(rec)
             yield rec
-
-    def extend(self, settings: SweepSettings) -> None:
-        """Continue with new settings (e.g. more stages); a converged search may sweep again."""
-        self.settings = settings
-        self.progress = replace(self.progress, converged=False)
 
 
 def energy_and_variance(state: ChainState, mpo: Mpo) -> tuple[float, float]:

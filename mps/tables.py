@@ -12,7 +12,6 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
-import numpy as np
 
 from mps.config import AnalysisConfig, InputError
 from mps.entanglement import default_alphas, entanglement_spectrum, resolve_cut, resolve_cut_joint

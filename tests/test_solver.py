@@ -76,3 +76,20 @@ def test_jordan_wigner_equivalence_of_xxz_and_free_fermions():
     _, spins = solve("xxz", sites, dict(J=1.0, Delta=0.0, h_stag=0.3, dimer=0.2), {"Sz": 1.0})
     _, ferm = solve("fermions", sites, dict(t=0.5, V=0.0, mu_stag=-0.3, dimer=0.2), {"N": 8})
     assert spins.progress.energy == pytest.approx(ferm.progress.energy, abs=1e-10)
+
+
+def test_state_vector_equals_exact_ground_state():
+    # Source: exact diagonalisation with scipy.sparse; the whole MPS, contracted to a vector,
+    # equals the exact ground state up to a global phase, and is normalised.
+    from mps.state import overlap, to_dense_vector
+
+    family, sites, couplings, charge = CASES["xxz-all-couplings"]
+    _, search = solved_case("xxz-all-couplings")
+    h, basis, _, _ = reference(family, sites, couplings, charge)
+    _, vec = ed.ground_state(h)
+    psi = to_dense_vector(search.state)           # basis (down, up) is already charge-sorted
+    bits = (basis[:, None] >> np.arange(sites)[None, :]) & 1
+    amplitudes = psi[tuple(bits.T)]
+    assert abs(np.vdot(vec, amplitudes)) == pytest.approx(1.0, abs=1e-10)
+    assert abs(overlap(search.state, search.state)) == pytest.approx(1.0, abs=1e-12)
+    assert np.linalg.norm(psi) == pytest.approx(1.0, abs=1e-12)
