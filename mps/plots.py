@@ -457,6 +457,19 @@ def _draw_equipartition_cuts(run: RunFiles, ax, threshold: float) -> None:
         ax.legend(loc="upper center", ncol=2)
 
 
+def _lattice_gaussian(lattice: np.ndarray, mean: float, var: float, spacing: float) -> np.ndarray:
+    """The Gaussian of the given mean and variance, normalised over the charge lattice.
+
+    For sigma^2 well below the lattice spacing squared the continuum density exceeds 1 at its
+    peak; like comparison.json's distances, the plot compares p(q) with the normalised version.
+    """
+    reach = 12.0 * np.sqrt(var) + 2 * spacing
+    start = lattice[0] - spacing * np.ceil((lattice[0] - (mean - reach)) / spacing)
+    wide = np.arange(start, mean + reach + spacing, spacing)
+    total = gaussian_probability(wide, mean, var, spacing).sum()
+    return gaussian_probability(lattice, mean, var, spacing) / total
+
+
 def draw_charge_distribution(run: RunFiles, path: Path) -> Path | None:
     """p(q) at mid-chain against the Gaussian of the measured mean and variance (linear and log)."""
     mid = _mid_sectors(run)
@@ -478,10 +491,10 @@ def draw_charge_distribution(run: RunFiles, path: Path) -> Path | None:
     lattice = np.arange(q.min() - 2 * spacing, q.max() + 2.5 * spacing, spacing)
     for ax, log in ((ax1, False), (ax2, True)):
         ax.bar(q, p, width=0.6 * spacing, color=_colour(0), alpha=0.75, label="MPS $p(q)$")
-        if var > 0:   # the Gaussian on the charge lattice; lines only guide the eye
-            ax.plot(lattice, gaussian_probability(lattice, mean, var, spacing), "D--", ms=5, mfc="none",
+        if var > 0:   # the Gaussian normalised on the charge lattice; lines only guide the eye
+            ax.plot(lattice, _lattice_gaussian(lattice, mean, var, spacing), "D--", ms=5, mfc="none",
                     color=_colour(1), lw=0.9,
-                    label=rf"Gaussian, $\langle q\rangle = {mean:.3f}$, $\sigma^2 = {var:.3f}$")
+                    label=rf"Gaussian on the lattice, $\langle q\rangle = {mean:.3f}$, $\sigma^2 = {var:.3f}$")
         if exact is not None:
             ax.plot(exact["charge"], exact["probability"], "x", ms=7, color="0.15", label="exact free fermions")
         ax.set(xlabel=rf"block charge $q$ (${run.charge_tex}$)", ylabel=r"$p(q)$",

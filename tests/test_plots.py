@@ -133,3 +133,16 @@ def test_table_reader_and_renyi_columns(finished):
     moments = load_table(finished / "moments.csv")
     assert set(np.unique(moments["n"])) == {1.0, 2.0, np.inf}
     assert load_table(finished / "absent.csv") is None
+
+
+def test_plotted_gaussian_is_normalised_on_the_charge_lattice():
+    # A narrow Gaussian (sigma^2 << spacing^2) must still be a probability distribution on the
+    # lattice, as in comparison.json's distances (exact: normalisation).
+    import numpy as np
+    from mps.plots import _lattice_gaussian
+
+    for var, spacing, mean in ((0.059, 1.0, 0.0), (0.3, 1.0, 0.2), (2.5, 1.0, -0.5), (0.02, 1.0, 0.5)):
+        lattice = np.arange(-30, 31) * spacing + (mean % spacing)
+        g = _lattice_gaussian(lattice, mean, var, spacing)
+        assert g.sum() == pytest.approx(1.0, abs=1e-12)
+        assert g.max() <= 1.0
