@@ -15,6 +15,8 @@ import numpy as np
 
 from mps.lattice import LocalSpace, Term
 
+from models.patterns import dimerised, staggered
+
 NAME = "fermions"
 DESCRIPTION = "spinless fermions (t-V chain): hopping t, repulsion V, potentials mu and mu_stag, dimerisation"
 CHARGE_NAMES = ("N",)
@@ -34,18 +36,14 @@ def space() -> LocalSpace:
     )
 
 
-def _stagger(j: int) -> int:
-    return 1 if j % 2 == 0 else -1
-
-
 def hoppings(sites: int, c: Mapping[str, float]) -> np.ndarray:
     """t_j = t (1 + dimer (-1)^j) for the bonds j = 0..L-2."""
-    return np.array([c["t"] * (1.0 + c["dimer"] * _stagger(j)) for j in range(sites - 1)])
+    return dimerised(c["t"], c["dimer"], sites - 1)
 
 
 def potentials(sites: int, c: Mapping[str, float]) -> np.ndarray:
     """mu + mu_stag (-1)^j on the sites j = 0..L-1 (enters H with a minus sign)."""
-    return np.array([c["mu"] + c["mu_stag"] * _stagger(j) for j in range(sites)])
+    return staggered(c["mu"], c["mu_stag"], sites)
 
 
 def terms(sites: int, c: Mapping[str, float]) -> list[Term]:

@@ -15,6 +15,8 @@ import numpy as np
 
 from mps.lattice import LocalSpace, Term
 
+from models.patterns import dimerised, staggered
+
 NAME = "xxz"
 DESCRIPTION = "spin-1/2 xxz chain: J, anisotropy Delta, fields h and h_stag, dimerisation"
 CHARGE_NAMES = ("Sz",)
@@ -32,18 +34,14 @@ def space() -> LocalSpace:
     )
 
 
-def _stagger(j: int) -> int:
-    return 1 if j % 2 == 0 else -1
-
-
 def bond_couplings(sites: int, c: Mapping[str, float]) -> np.ndarray:
     """J_j = J (1 + dimer (-1)^j) for the bonds j = 0..L-2 (bond j joins sites j and j+1)."""
-    return np.array([c["J"] * (1.0 + c["dimer"] * _stagger(j)) for j in range(sites - 1)])
+    return dimerised(c["J"], c["dimer"], sites - 1)
 
 
 def site_fields(sites: int, c: Mapping[str, float]) -> np.ndarray:
     """h + h_stag (-1)^j on the sites j = 0..L-1."""
-    return np.array([c["h"] + c["h_stag"] * _stagger(j) for j in range(sites)])
+    return staggered(c["h"], c["h_stag"], sites)
 
 
 def terms(sites: int, c: Mapping[str, float]) -> list[Term]:
