@@ -30,7 +30,7 @@ Keys of comparison.json (forms and sources in :mod:`mps.fieldtheory`):
 - ``correlation_length``: the result of :func:`mps.correlations.correlation_length` on the
   connected charge-charge correlations (xi, null when the decay is not exponential, as on a
   critical chain; amplitude, residual, window, ...) plus ``window_start_over_xi`` (the massive
-  forms need l >> xi); null when :mod:`mps.correlations` is not installed;
+  forms need l >> xi); null when ``analysis.correlations`` is false;
 - ``exact``: null unless the chain is quadratic; then ``n_particles``, ``rare_sector``,
   ``max_deviation`` {probability, sector_entropy, entropy, moments, charge_correlations}, each
   {value, cut, ...where}, ``missing_sectors`` (sectors with exact p above ``rare_sector`` that the
@@ -50,6 +50,7 @@ from pathlib import Path
 import numpy as np
 
 from mps import __version__
+from mps import correlations as _correlations
 from mps.config import InputError, RunConfig
 from mps.fieldtheory import (
     default_window,
@@ -67,10 +68,6 @@ from mps.rundir import write_json
 from mps.state import ChainState
 from mps.tables import Table, charge_value, renyi_label, resolve_state, write_tables
 
-try:  # the correlation measurement is optional until it lands
-    from mps import correlations as _correlations
-except ImportError:  # pragma: no cover - depends on the installed tree
-    _correlations = None
 
 COMPARISON = "comparison.json"
 EXACT_ENTROPIES = "exact_entropies"
@@ -275,9 +272,7 @@ def _moments(mid: CutResolved, alpha_max: float) -> dict:
 
 
 # ----------------------------------------------------------------------------- correlations
-def _solver_correlations(state: ChainState, site_charge: np.ndarray) -> np.ndarray | None:
-    if _correlations is None:
-        return None
+def _solver_correlations(state: ChainState, site_charge: np.ndarray) -> np.ndarray:
     return np.asarray(_correlations.connected_charge_correlations(state, site_charge), dtype=float)
 
 

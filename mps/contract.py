@@ -282,7 +282,6 @@ class PlannedChain:
 
     def __init__(self, template: BlockTensor, steps):
         legs, charge = template.legs, template.charge
-        self.in_legs, self.in_charge = legs, charge
         self.plans, self.constants, self.first = [], [], []
         for const, ax_run, ax_const, run_first in steps:
             ax_run = tuple(int(i) % len(legs) for i in ax_run)

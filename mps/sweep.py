@@ -151,8 +151,9 @@ class GroundStateSearch:
         self.state.spectra[j + 1] = BondSpectrum(cut.bond.charges, values)
         return res.value, cut, values
 
-    def _sweep(self, stage: Stage, on_bond, should_stop) -> tuple[float, float]:
-        """One sweep (left to right and back), starting at bond step ``progress.step``."""
+    def _sweep(self, stage: Stage, on_bond, should_stop) -> tuple[float, float, float]:
+        """One sweep (left to right and back), starting at bond step ``progress.step``; returns the
+        last energy, the largest discarded weight and the seconds spent."""
         n = self.state.sites
         ts, ws = self.state.tensors, self.mpo.tensors
         p = self.progress

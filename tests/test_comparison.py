@@ -34,12 +34,6 @@ from mps.freefermions import resolve_all_cuts
 from mps.rundir import read_table
 from mps.sweep import Stage, SweepSettings
 
-try:
-    import mps.correlations  # noqa: F401
-    HAVE_CORRELATIONS = True
-except ImportError:  # pragma: no cover
-    HAVE_CORRELATIONS = False
-
 RENYI = (1.0, 2.0, 3.0, math.inf)
 TOP_KEYS = {"name", "family", "sites", "couplings", "charge", "renyi", "version", "window",
             "central_charge", "luttinger", "equipartition", "charged_moments", "correlation_length", "exact"}
@@ -122,7 +116,6 @@ def test_compare_run_on_free_chain(free_dimerised):
     assert len(mid["per_cut"]["cut"]) == 63
 
 
-@pytest.mark.skipif(not HAVE_CORRELATIONS, reason="mps.correlations not installed")
 def test_correlations_of_massive_free_chain(free_dimerised):
     # Wick's theorem for the exact connected density correlations (delta_ij C_ii - |C_ij|^2, Peschel
     # 2003); the dimerised chain is gapped, so the correlation length is finite
