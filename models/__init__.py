@@ -24,7 +24,7 @@ from types import ModuleType
 
 import numpy as np
 
-from mps.lattice import LocalSpace, Term
+from mps.chain.lattice import LocalSpace, Term
 
 from models import fermions, xxz
 

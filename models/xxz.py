@@ -13,7 +13,7 @@ from collections.abc import Mapping
 
 import numpy as np
 
-from mps.lattice import LocalSpace, Term
+from mps.chain.lattice import LocalSpace, Term
 
 from models.patterns import dimerised, staggered
 

@@ -1,5 +1,5 @@
 """``python -m mps`` runs the command line."""
 
-from mps.cli import main
+from mps.pipeline.cli import main
 
 raise SystemExit(main())

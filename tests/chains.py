@@ -8,8 +8,8 @@ import numpy as np
 
 import reference_ed as ed
 from models import get_family
-from mps.mpo import build_mpo
-from mps.sweep import Stage, SweepSettings, find_ground_state
+from mps.chain.mpo import build_mpo
+from mps.solver.sweep import Stage, SweepSettings, find_ground_state
 
 SETTINGS = SweepSettings((Stage(32, 2, 1e-5), Stage(128, 8, 0.0)), discard=1e-14, energy_tol=1e-12)
 

@@ -10,7 +10,7 @@ import pytest
 
 import models
 from models import ModelFamily, UnknownNameError, family_names, get_family, register
-from mps.lattice import LocalSpace, Term
+from mps.chain.lattice import LocalSpace, Term
 
 import reference_ed as ref
 

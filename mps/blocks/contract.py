@@ -1,0 +1,343 @@
+"""Pairwise contraction of block-sparse tensors, planned once per structure and run as large GEMMs.
+
+To contract legs ``axes_a`` of A with legs ``axes_b`` of B, the contracted legs are fused into
+one "middle" leg and the free legs of each tensor into a row (A) or column (B) leg. Conservation
+makes every fused middle sector c meet exactly one row sector of A (charge Q_A - c) and one
+column sector of B (charge Q_B + c), so the contraction is one dense matrix product per middle
+sector: the blocks are packed into those matrices, multiplied with one BLAS call each, and the
+product is cut back into the blocks of the result. The plan (which block goes where) depends only
+on the legs, total charges and axes, so it is computed once and cached; a Krylov solver that
+applies the same operator many times pays for it once.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from collections import OrderedDict
+from typing import NamedTuple
+
+import numpy as np
+
+from mps.blocks.charges import FusionMap, Leg, fuse
+from mps.blocks.tensor import BlockTensor, layout
+
+
+@dataclass(frozen=True)
+class _Part:
+    """One stored block and the rectangle it occupies in a group matrix."""
+
+    block: int
+    row: int
+    col: int
+    nrow: int
+    ncol: int
+
+
+@dataclass(frozen=True)
+class _Group:
+    """One GEMM: rows x mid times mid x cols, stored at these offsets of the packed buffers."""
+
+    nrow: int
+    nmid: int
+    ncol: int
+    a_start: int
+    b_start: int
+    c_start: int
+
+
+@dataclass(frozen=True)
+class ContractionPlan:
+    """Everything needed to contract two structures.
+
+    The operands are packed into one buffer of group matrices each (group after group, C order):
+    ``gather_a[i]`` is the position in A's flat data of packed entry i (likewise ``gather_b``;
+    None when the data is already in packed order). The products land in one packed buffer of
+    ``packed_size`` entries followed by a single zero; ``out_from_packed[j]`` is the packed
+    position of entry j of the result's flat data (the zero slot for entries no group produces;
+    None when the packed buffer already is the result). One fancy-index per operand replaces a
+    Python loop over blocks, and chained contractions can compose these maps (see
+    :class:`PlannedChain`).
+    """
+
+    out_legs: tuple[Leg, ...]
+    out_charge: tuple[int, ...]
+    groups: tuple[_Group, ...]
+    gather_a: np.ndarray | None
+    gather_b: np.ndarray | None
+    out_from_packed: np.ndarray | None
+    packed_size: int
+    out_size: int
+
+    @property
+    def flops(self) -> int:
+        """Real multiply-adds times two, counted from the group shapes."""
+        return sum(2 * g.nrow * g.nmid * g.ncol for g in self.groups)
+
+
+def _fusion(legs: tuple[Leg, ...], k: int) -> FusionMap:
+    if legs:
+        return fuse(legs, 1)
+    trivial = Leg(((0,) * k,), (1,), 1)
+    return FusionMap((), trivial, {(): (0, 0, ())})
+
+
+def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
+    if len(axes_a) != len(axes_b):
+        raise ValueError("contract needs the same number of axes on both tensors")
+    if len(set(axes_a)) != len(axes_a) or len(set(axes_b)) != len(axes_b):
+        raise ValueError("an axis may be contracted only once")
+    for i, j in zip(axes_a, axes_b):
+        if not a_legs[i].is_dual_of(b_legs[j]):
+            raise ValueError(f"leg {i} of the first tensor does not match leg {j} of the second: "
+                             "contracted legs need the same sectors and opposite flows")
+
+
+def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
+                     b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
+                     ) -> ContractionPlan:
+    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B."""
+    _check_pairs(a_legs, axes_a, b_legs, axes_b)
+    k = a_legs[0].nq
+    free_a = tuple(i for i in range(len(a_legs)) if i not in axes_a)
+    free_b = tuple(i for i in range(len(b_legs)) if i not in axes_b)
+    fa = _fusion(tuple(a_legs[i] for i in free_a), k)
+    fb = _fusion(tuple(b_legs[i] for i in free_b), k)
+    fm = _fusion(tuple(a_legs[i] for i in axes_a), k)
+    qa, qb = np.asarray(a_charge), np.asarray(b_charge)
+
+    lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
+    a_parts = _parts(lay_a, free_a, axes_a, fa, fm, rows_first=True)
+    b_parts = _parts(lay_b, axes_b, free_b, fm, fb, rows_first=False)
+    out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
+    out_charge = tuple(int(c) for c in qa + qb)
+    out_parts: dict[int, list[_Part]] = {}
+    if out_legs:
+        lay_o = layout(out_legs, out_charge)
+        na = len(free_a)
+        mid_of = [fm.fused.index(tuple(int(x) for x in qa - np.asarray(q))) for q in fa.fused.charges]
+        for bi, key in enumerate(lay_o.keys):
+            rs, ro, rshape = fa.entries[key[:na]]
+            cs, co, cshape = fb.entries[key[na:]]
+            out_parts.setdefault(mid_of[rs], []).append(_Part(bi, ro, co, _size(rshape), _size(cshape)))
+    groups = []
+    ga, gb, sc = [], [], []
+    pa = pb = pc = 0
+    for ms in sorted(set(a_parts) & set(b_parts)):
+        c = np.asarray(fm.fused.charges[ms])
+        rs = fa.fused.index(tuple(qa - c))
+        cs = fb.fused.index(tuple(qb + c))
+        if rs < 0 or cs < 0:
+            continue
+        g = _Group(fa.fused.sizes[rs], fm.fused.sizes[ms], fb.fused.sizes[cs], pa, pb, pc)
+        groups.append(g)
+        ga.append(_gather(lay_a, a_parts[ms], free_a + tuple(axes_a), g.nrow, g.nmid))
+        gb.append(_gather(lay_b, b_parts[ms], tuple(axes_b) + free_b, g.nmid, g.ncol))
+        if out_legs:
+            sc.append(_gather(lay_o, out_parts.get(ms, ()), tuple(range(len(out_legs))), g.nrow, g.ncol))
+        pa, pb, pc = pa + g.nrow * g.nmid, pb + g.nmid * g.ncol, pc + g.nrow * g.ncol
+    out_size = lay_o.size if out_legs else 1
+    out_from = None
+    if out_legs:
+        scatter = np.concatenate(sc) if sc else np.zeros(0, dtype=np.int64)
+        if not (scatter.size == out_size and np.array_equal(scatter, np.arange(out_size))):
+            out_from = np.full(out_size, pc, dtype=np.intp)     # pc = the zero slot
+            out_from[scatter] = np.arange(scatter.size, dtype=np.intp)
+    return ContractionPlan(out_legs, out_charge, tuple(groups), _index(ga, lay_a.size),
+                           _index(gb, lay_b.size), out_from, pc, out_size)
+
+
+class CacheInfo(NamedTuple):
+    hits: int
+    misses: int
+    plans: int
+    nbytes: int
+
+
+class PlanCache:
+    """Least-recently-used contraction plans, bounded by the memory of their index arrays.
+
+    Small plans are kept by the hundreds, so sweeps that revisit the same block structures (a
+    converged stage) plan nothing; plans of bond-512 intermediates weigh tens of megabytes, and
+    only a few of those are kept.
+    """
+
+    def __init__(self, build, max_bytes: int):
+        self.build, self.max_bytes = build, max_bytes
+        self.plans: OrderedDict = OrderedDict()
+        self.nbytes = self.hits = self.misses = 0
+
+    @staticmethod
+    def weight(plan: ContractionPlan) -> int:
+        return sum(a.nbytes for a in (plan.gather_a, plan.gather_b, plan.out_from_packed) if a is not None) + 1024
+
+    def __call__(self, *key) -> ContractionPlan:
+        plan = self.plans.get(key)
+        if plan is not None:
+            self.hits += 1
+            self.plans.move_to_end(key)
+            return plan
+        self.misses += 1
+        plan = self.build(*key)
+        self.plans[key] = plan
+        self.nbytes += self.weight(plan)
+        while self.nbytes > self.max_bytes and len(self.plans) > 1:
+            _, old = self.plans.popitem(last=False)
+            self.nbytes -= self.weight(old)
+        return plan
+
+    def cache_info(self) -> CacheInfo:
+        return CacheInfo(self.hits, self.misses, len(self.plans), self.nbytes)
+
+    def cache_clear(self) -> None:
+        self.plans.clear()
+        self.nbytes = 0
+
+
+plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
+"""Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B (cached by structure):
+``plan_contraction(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)``."""
+
+
+def _size(shape) -> int:
+    return math.prod(shape)
+
+
+def _parts(lay, row_axes, col_axes, frow, fcol, rows_first: bool) -> dict[int, list[_Part]]:
+    """Place every block of a layout in its group matrix; group = fused sector of the middle legs."""
+    parts: dict[int, list[_Part]] = {}
+    for bi, key in enumerate(lay.keys):
+        rs, ro, rshape = frow.entries[tuple(key[i] for i in row_axes)]
+        cs, co, cshape = fcol.entries[tuple(key[i] for i in col_axes)]
+        group = cs if rows_first else rs
+        parts.setdefault(group, []).append(_Part(bi, ro, co, _size(rshape), _size(cshape)))
+    return parts
+
+
+def _gather(lay, parts, perm, nrow: int, ncol: int) -> np.ndarray:
+    """Flat-data position of every entry of one group matrix (-1 where no block covers it)."""
+    idx = np.full((nrow, ncol), -1, dtype=np.int64)
+    for p in parts:
+        start = int(lay.offsets[p.block])
+        block = np.arange(start, start + p.nrow * p.ncol, dtype=np.int64).reshape(lay.shapes[p.block])
+        idx[p.row:p.row + p.nrow, p.col:p.col + p.ncol] = block.transpose(perm).reshape(p.nrow, p.ncol)
+    return idx.ravel()
+
+
+def _index(pieces: list[np.ndarray], size: int) -> np.ndarray | None:
+    """Concatenate gather pieces; None when they are the identity (no copy needed)."""
+    if not pieces:
+        return np.zeros(0, dtype=np.int64)
+    idx = np.concatenate(pieces)
+    if idx.size == size and np.array_equal(idx, np.arange(size)):
+        return None
+    if np.any(idx < 0):
+        raise AssertionError("contraction plan left a hole in a group matrix")
+    return idx.astype(np.intp)
+
+
+def _packed(data: np.ndarray, gather: np.ndarray | None) -> np.ndarray:
+    return data if gather is None else np.take(data, gather)
+
+
+def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype,
+                out: np.ndarray | None = None) -> np.ndarray:
+    """All group products of packed operands, into a packed buffer ending with one zero."""
+    pc = np.empty(plan.packed_size + 1, dtype=dtype) if out is None else out
+    pc[-1] = 0
+    for g in plan.groups:
+        np.matmul(pa[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
+                  pb[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
+                  out=pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
+    return pc
+
+
+def unpack(plan: ContractionPlan, pc: np.ndarray) -> np.ndarray:
+    """Flat data of the result (a new array) from the packed products."""
+    if plan.out_from_packed is None:
+        return pc[:plan.packed_size].copy()
+    return np.take(pc, plan.out_from_packed)
+
+
+def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
+    """Execute a contraction plan; returns a BlockTensor, or a scalar if no leg is left."""
+    dtype = np.result_type(a.dtype, b.dtype)
+    pc = gemm_groups(plan, _packed(a.data, plan.gather_a), _packed(b.data, plan.gather_b), dtype)
+    if not plan.out_legs:
+        return pc[:-1].sum() if plan.packed_size else dtype.type(0)
+    data = pc[:plan.packed_size] if plan.out_from_packed is None else np.take(pc, plan.out_from_packed)
+    return BlockTensor(plan.out_legs, plan.out_charge, data)
+
+
+class PlannedChain:
+    """A fixed sequence of contractions of a running tensor with constant tensors.
+
+    ``steps`` are ``(constant, axes of the running tensor, axes of the constant, running_first)``;
+    each step contracts the previous result with its constant (as the first operand of the
+    contraction when ``running_first``). The constants are packed once, and between steps the
+    result is never laid out as blocks: the unpacking map of one step and the packing map of the
+    next are composed into a single gather. Used for the effective Hamiltonian, whose Krylov
+    iterations repeat the same chain many times.
+    """
+
+    def __init__(self, template: BlockTensor, steps):
+        legs, charge = template.legs, template.charge
+        self.plans, self.constants, self.first = [], [], []
+        for const, ax_run, ax_const, run_first in steps:
+            ax_run = tuple(int(i) % len(legs) for i in ax_run)
+            ax_const = tuple(int(i) % const.ndim for i in ax_const)
+            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
+                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
+            self.plans.append(plan)
+            self.constants.append(_packed(const.data, plan.gather_b if run_first else plan.gather_a))
+            self.first.append(run_first)
+            legs, charge = plan.out_legs, plan.out_charge
+        self.out_legs, self.out_charge = legs, charge
+        first = self.plans[0]
+        self.gathers = [first.gather_a if self.first[0] else first.gather_b]
+        for prev, plan, run_first in zip(self.plans, self.plans[1:], self.first[1:]):
+            nxt = plan.gather_a if run_first else plan.gather_b
+            if prev.out_from_packed is None:
+                self.gathers.append(nxt)
+            elif nxt is None:
+                self.gathers.append(prev.out_from_packed)
+            else:
+                self.gathers.append(prev.out_from_packed[nxt])
+        self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants])
+
+        # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
+        # every application
+        self._packed_in = [np.empty(g.size if g is not None else 0, dtype=self.dtype) for g in self.gathers]
+        self._products = [np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
+
+    @property
+    def flops(self) -> int:
+        return sum(p.flops for p in self.plans)
+
+    def __call__(self, data: np.ndarray) -> np.ndarray:
+        """Flat data of the final result for the running tensor's flat ``data``."""
+        x = data
+        last = len(self.plans) - 1
+        for k, plan in enumerate(self.plans):
+            if self.gathers[k] is not None:
+                x = np.take(x, self.gathers[k], out=self._packed_in[k], mode="clip")  # unbuffered
+            a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
+            x = gemm_groups(plan, a, b, self.dtype, self._products[k])
+            if k == last:
+                return unpack(plan, x)
+            if self.gathers[k + 1] is None and plan.out_from_packed is None:
+                x = x[:plan.packed_size]
+        return x
+
+
+def contract(a: BlockTensor, b: BlockTensor, axes_a, axes_b):
+    """Contract legs ``axes_a`` of ``a`` with legs ``axes_b`` of ``b`` (like ``np.tensordot``).
+
+    The result's legs are the free legs of ``a`` in order, then the free legs of ``b``; its total
+    charge is the sum of both charges. Contracted legs must have identical sectors and opposite
+    flows. With no free leg left the result is a scalar.
+    """
+    axes_a = tuple(int(i) % a.ndim for i in np.atleast_1d(axes_a))
+    axes_b = tuple(int(i) % b.ndim for i in np.atleast_1d(axes_b))
+    plan = plan_contraction(a.legs, a.charge, axes_a, b.legs, b.charge, axes_b)
+    return run_plan(plan, a, b)

@@ -1,0 +1,234 @@
+"""Block-sparse tensors with exact U(1)^k charge bookkeeping.
+
+Only charge-allowed blocks exist (sum_i f_i q_i = Q for the block's sectors). Every allowed,
+non-empty block is stored, in one flat array, in lexicographic order of its sector indices and
+C order inside the block, so that vector operations (norms, inner products, the Krylov
+recurrences of the solver) are single numpy calls and each block is a view into that array.
+The layout is a pure function of the legs and the total charge and is computed once per
+structure (cached).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from mps.blocks.charges import Leg, combined_charges, encode
+
+
+@dataclass(frozen=True)
+class Layout:
+    """Allowed blocks of a structure and where each lives in the flat data array."""
+
+    legs: tuple[Leg, ...]
+    charge: tuple[int, ...]
+    keys: tuple[tuple[int, ...], ...]
+    shapes: tuple[tuple[int, ...], ...]
+    offsets: np.ndarray
+    index: dict[tuple[int, ...], int]
+
+    @property
+    def size(self) -> int:
+        return int(self.offsets[-1])
+
+    @property
+    def nblocks(self) -> int:
+        return len(self.keys)
+
+
+@lru_cache(maxsize=8192)
+def layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
+    """Allowed non-empty blocks of a tensor with ``legs`` and total charge ``charge``."""
+    if not legs:
+        raise ValueError("a block tensor needs at least one leg")
+    k = legs[0].nq
+    if any(leg.nq != k for leg in legs) or len(charge) != k:
+        raise ValueError("all legs and the total charge must have the same number of charges")
+    if len(legs) == 1:
+        hit = np.all(legs[0].flow * legs[0].charge_array == np.asarray(charge)[None, :], axis=1)
+        combos = np.flatnonzero(hit)[:, None]
+    else:
+        head, total = combined_charges(legs[:-1])
+        last = legs[-1]
+        need = last.flow * (np.asarray(charge, dtype=np.int64)[None, :] - total)
+        lookup = last._lookup
+        idx = np.array([lookup.get(int(c), -1) for c in encode(need)], dtype=np.int64) \
+            if len(need) else np.zeros(0, dtype=np.int64)
+        ok = idx >= 0
+        combos = np.concatenate([head[ok], idx[ok][:, None]], axis=1)
+    dims = np.stack([np.asarray(leg.sizes, dtype=np.int64)[combos[:, i]] for i, leg in enumerate(legs)],
+                    axis=1) if combos.size else np.zeros((0, len(legs)), dtype=np.int64)
+    nonempty = np.all(dims > 0, axis=1)
+    keys = list(map(tuple, combos[nonempty].tolist()))
+    shapes = list(map(tuple, dims[nonempty].tolist()))
+    sizes = np.prod(dims[nonempty], axis=1) if keys else np.zeros(0, dtype=np.int64)
+    offsets = np.concatenate([[0], np.cumsum(sizes, dtype=np.int64)]).astype(np.int64)
+    return Layout(legs, tuple(charge), tuple(keys), tuple(shapes), offsets,
+                  {kk: i for i, kk in enumerate(keys)})
+
+
+class BlockTensor:
+    """A tensor whose non-zero entries are confined to charge-allowed blocks.
+
+    Parameters
+    ----------
+    legs : the legs, in order.
+    charge : total charge Q (integer vector); conservation rule sum_i f_i q_i = Q.
+    data : flat array holding every allowed block in layout order (zeros if omitted).
+    dtype : element type when ``data`` is omitted.
+    """
+
+    __slots__ = ("legs", "charge", "layout", "data")
+
+    def __init__(self, legs, charge=None, data=None, dtype=np.float64):
+        self.legs = tuple(legs)
+        k = self.legs[0].nq
+        self.charge = tuple(int(c) for c in (charge if charge is not None else (0,) * k))
+        self.layout = layout(self.legs, self.charge)
+        if data is None:
+            data = np.zeros(self.layout.size, dtype=dtype)
+        data = np.asarray(data)
+        if data.shape != (self.layout.size,):
+            raise ValueError(f"flat data must have shape ({self.layout.size},), got {data.shape}")
+        self.data = data
+
+    # ----------------------------------------------------------------- construction
+    @classmethod
+    def zeros(cls, legs, charge=None, dtype=np.float64) -> "BlockTensor":
+        return cls(legs, charge, dtype=dtype)
+
+    @classmethod
+    def random(cls, legs, charge=None, rng=None, dtype=np.float64) -> "BlockTensor":
+        """Gaussian random entries in every allowed block."""
+        rng = np.random.default_rng(rng)
+        t = cls(legs, charge, dtype=dtype)
+        t.data[:] = rng.standard_normal(t.data.shape)
+        if np.iscomplexobj(t.data):
+            t.data += 1j * rng.standard_normal(t.data.shape)
+        return t
+
+    @classmethod
+    def from_dense(cls, array, legs, charge=None, atol: float = 1e-12) -> "BlockTensor":
+        """Cut a dense array into allowed blocks; refuse it if a forbidden entry exceeds ``atol``."""
+        array = np.asarray(array)
+        legs = tuple(legs)
+        if array.shape != tuple(leg.dim for leg in legs):
+            raise ValueError(f"dense shape {array.shape} does not match leg dimensions "
+                             f"{tuple(leg.dim for leg in legs)}")
+        t = cls(legs, charge, dtype=np.result_type(array.dtype, np.float64))
+        mask = np.zeros(array.shape, dtype=bool)
+        for key, view in t.blocks():
+            sl = t._slices(key)
+            view[...] = array[sl]
+            mask[sl] = True
+        bad = np.abs(np.where(mask, 0, array))
+        if bad.size and bad.max() > atol:
+            where = np.unravel_index(int(np.argmax(bad)), array.shape)
+            raise ValueError(f"entry {tuple(int(i) for i in where)} = {array[where]!r} breaks charge "
+                             f"conservation (total charge {t.charge})")
+        return t
+
+    # ----------------------------------------------------------------- access
+    @property
+    def dtype(self):
+        return self.data.dtype
+
+    @property
+    def ndim(self) -> int:
+        return len(self.legs)
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return tuple(leg.dim for leg in self.legs)
+
+    def block(self, i: int) -> np.ndarray:
+        """View of block number ``i`` (layout order)."""
+        o = self.layout.offsets
+        return self.data[o[i]:o[i + 1]].reshape(self.layout.shapes[i])
+
+    def get(self, key) -> np.ndarray | None:
+        """View of the block with sector indices ``key``, or None if it is not allowed."""
+        i = self.layout.index.get(tuple(key))
+        return None if i is None else self.block(i)
+
+    def blocks(self):
+        """Iterate over ``(key, view)`` of every stored block."""
+        for i, key in enumerate(self.layout.keys):
+            yield key, self.block(i)
+
+    def _slices(self, key) -> tuple[slice, ...]:
+        return tuple(slice(int(leg.offsets[c]), int(leg.offsets[c + 1])) for leg, c in zip(self.legs, key))
+
+    def to_dense(self) -> np.ndarray:
+        out = np.zeros(self.shape, dtype=self.dtype)
+        for key, view in self.blocks():
+            out[self._slices(key)] = view
+        return out
+
+    # ----------------------------------------------------------------- algebra
+    def copy(self) -> "BlockTensor":
+        return BlockTensor(self.legs, self.charge, self.data.copy())
+
+    def astype(self, dtype) -> "BlockTensor":
+        return BlockTensor(self.legs, self.charge, self.data.astype(dtype))
+
+    def conj(self) -> "BlockTensor":
+        """Complex conjugate: every flow reversed and the total charge negated (same blocks)."""
+        return BlockTensor(tuple(leg.dual() for leg in self.legs), tuple(-c for c in self.charge),
+                           self.data.conj())
+
+    def _check_same(self, other: "BlockTensor") -> None:
+        if self.legs != other.legs or self.charge != other.charge:
+            raise ValueError("tensors have different legs or total charge")
+
+    def __add__(self, other: "BlockTensor") -> "BlockTensor":
+        self._check_same(other)
+        return BlockTensor(self.legs, self.charge, self.data + other.data)
+
+    def __sub__(self, other: "BlockTensor") -> "BlockTensor":
+        self._check_same(other)
+        return BlockTensor(self.legs, self.charge, self.data - other.data)
+
+    def __neg__(self) -> "BlockTensor":
+        return BlockTensor(self.legs, self.charge, -self.data)
+
+    def __mul__(self, scalar) -> "BlockTensor":
+        if not np.isscalar(scalar):
+            raise TypeError("a block tensor can only be multiplied by a scalar")
+        return BlockTensor(self.legs, self.charge, self.data * scalar)
+
+    __rmul__ = __mul__
+
+    def __truediv__(self, scalar) -> "BlockTensor":
+        return self * (1.0 / scalar)
+
+    def norm(self) -> float:
+        """Frobenius norm."""
+        return float(np.linalg.norm(self.data))
+
+    def inner(self, other: "BlockTensor") -> complex:
+        """<self|other> = sum conj(self) * other over all entries."""
+        self._check_same(other)
+        return np.vdot(self.data, other.data)
+
+    def transpose(self, perm) -> "BlockTensor":
+        """Permute the legs: leg i of the result is leg ``perm[i]`` of this tensor."""
+        perm = tuple(int(p) for p in perm)
+        if sorted(perm) != list(range(self.ndim)):
+            raise ValueError(f"{perm} is not a permutation of {self.ndim} legs")
+        if perm == tuple(range(self.ndim)):
+            return self.copy()
+        out = BlockTensor(tuple(self.legs[p] for p in perm), self.charge, dtype=self.dtype)
+        src = self.layout.index
+        for i, key in enumerate(out.layout.keys):
+            orig = [0] * self.ndim
+            for j, p in enumerate(perm):
+                orig[p] = key[j]
+            out.block(i)[...] = self.block(src[tuple(orig)]).transpose(perm)
+        return out
+
+    def __repr__(self) -> str:
+        return (f"BlockTensor(shape={self.shape}, charge={self.charge}, blocks={self.layout.nblocks}, "
+                f"flows={[leg.flow for leg in self.legs]}, dtype={self.dtype})")

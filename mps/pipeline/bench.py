@@ -1,0 +1,203 @@
+"""``chargewise bench``: the performance figures of DESIGN.md section 6, as JSON.
+
+- ``block_vs_dense``: one two-site effective-Hamiltonian application with charge blocks versus
+  the same contraction done densely with numpy (Heisenberg chain, mid-chain bond structure).
+- ``gemm_fraction``: FLOP rate of that block-sparse application (FLOPs counted from the block
+  shapes of the contraction plans) over numpy's matmul rate on 2048 x 2048 matrices measured in the
+  same process (the machine's practical peak).
+- ``seconds_per_sweep`` and ``sweep_exponent``: one full sweep of a Heisenberg chain at each bond
+  dimension with a fixed Krylov work per bond (8 applications, no restart, 4 in ``--quick``), so
+  only the engine's cost is measured, and the slope of log(seconds) against log(bond).
+- ``peak_rss_mb``: peak resident memory of the process that ran the largest-bond sweep (each sweep
+  runs in a fresh process).
+Bond sectors follow the Gaussian charge profile that critical spin chains show, so block counts
+and sizes are realistic without having to converge a large state first.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import multiprocessing as mp
+import os
+import platform
+import resource
+import sys
+import time
+
+import numpy as np
+
+from models import get_family
+from mps.blocks.charges import Leg
+from mps.blocks.contract import PlannedChain, contract, plan_contraction
+from mps.solver.effective import apply_merged, merge_pair
+from mps.chain.mpo import build_mpo
+from mps.chain.state import ChainState, canonicalize
+from mps.solver.sweep import GroundStateSearch, Stage, SweepSettings
+from mps.blocks.tensor import BlockTensor
+
+
+def gaussian_leg(bond: int, parity: int, flow: int, width: float = 2.5, cap: int | None = None) -> Leg:
+    """Bond leg with charges of one parity and sizes ~ exp(-q^2 / (2 width^2)) adding up to ``bond``."""
+    qs = np.arange(-40 + parity, 41, 2)
+    w = np.exp(-qs.astype(float) ** 2 / (2 * width**2))
+    sizes = np.floor(bond * w / w.sum()).astype(int)
+    sizes[np.argmax(w)] += bond - sizes.sum()
+    if cap is not None:
+        sizes = np.minimum(sizes, cap)
+    keep = sizes > 0
+    return Leg.make(qs[keep], sizes[keep], flow)
+
+
+def heisenberg_mpo(sites: int):
+    fam = get_family("xxz")
+    return build_mpo(fam.space(), sites, fam.terms(sites, {"J": 1.0, "Delta": 1.0}))
+
+
+def effective_problem(bond: int, rng: np.random.Generator):
+    """(left environment, merged MPO pair, right environment, two-site tensor) at a mid-chain bond."""
+    mpo = heisenberg_mpo(6)
+    w1, w2 = mpo.tensors[2], mpo.tensors[3]
+    left_bond = gaussian_leg(bond, 1, 1)
+    right_bond = gaussian_leg(bond, 1, 1)
+    left = BlockTensor.random((left_bond, w1.legs[0].dual(), left_bond.dual()), None, rng=rng)
+    right = BlockTensor.random((right_bond.dual(), w2.legs[3].dual(), right_bond), None, rng=rng)
+    theta = BlockTensor.random((left_bond, mpo.phys, mpo.phys, right_bond.dual()), None, rng=rng)
+    return left, merge_pair(w1, w2), right, theta
+
+
+def dense_application(left, pair, right, theta) -> np.ndarray:
+    """The same contraction order (environment, two-site tensor, MPO pair, environment) in numpy."""
+    x = np.tensordot(left, theta, axes=(2, 0))
+    x = np.tensordot(x, pair, axes=((1, 2, 3), (0, 1, 2)))
+    return np.tensordot(x, right, axes=((1, 4), (2, 1)))
+
+
+def application_flops(left, pair, right, theta) -> int:
+    """FLOPs of one block-sparse application, from the block shapes of its contraction plans."""
+    total = 0
+    x = theta
+    for a, b, ax, bx in ((left, None, (2,), (0,)), (None, pair, (1, 2, 3), (0, 1, 2)),
+                         (None, right, (1, 4), (2, 1))):
+        a = x if a is None else a
+        b = x if b is None else b
+        total += plan_contraction(a.legs, a.charge, ax, b.legs, b.charge, bx).flops
+        x = contract(a, b, ax, bx)
+    return total
+
+
+def best_time(fn, repeats: int) -> float:
+    best = math.inf
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def gemm_rate(n: int = 2048, repeats: int = 3) -> float:
+    a = np.random.default_rng(0).standard_normal((n, n))
+    b = np.random.default_rng(1).standard_normal((n, n))
+    a @ b
+    return 2.0 * n**3 / best_time(lambda: a @ b, repeats)
+
+
+def application_figures(bond: int, repeats: int) -> dict:
+    rng = np.random.default_rng(5)
+    problem = effective_problem(bond, rng)
+    left, pair, right, theta = problem
+    chain = PlannedChain(theta, [(left, (0,), (2,), False), (pair, (1, 2, 3), (0, 1, 2), True),
+                                 (right, (1, 4), (2, 1), True)])
+    t_block = best_time(lambda: chain(theta.data), repeats)
+    dense = [t.to_dense() for t in problem]
+    t_dense = best_time(lambda: dense_application(*dense), max(1, repeats // 2))
+    check = apply_merged(*problem).to_dense()
+    err = float(np.max(np.abs(check - dense_application(*dense))) / max(np.max(np.abs(check)), 1e-300))
+    flops = application_flops(*problem)
+    peak = gemm_rate()
+    return {"bond": bond, "block_seconds": t_block, "dense_seconds": t_dense,
+            "block_vs_dense": t_dense / t_block, "block_gflops": flops / t_block / 1e9,
+            "peak_gflops": peak / 1e9, "gemm_fraction": flops / t_block / peak,
+            "relative_difference": err, "blocks_in_theta": problem[-1].layout.nblocks}
+
+
+def chain_legs(sites: int, bond: int) -> list[Leg]:
+    """Bond legs 0..L of a chain at total S^z = 0 with Gaussian sector profiles capped at ``bond``."""
+    legs = [Leg(((0,),), (1,), 1)]
+    for b in range(1, sites):
+        legs.append(gaussian_leg(min(bond, 2 ** min(b, sites - b, 20)), b % 2, 1))
+    legs.append(Leg(((0,),), (1,), 1))
+    return legs
+
+
+def _sweep_worker(sites: int, bond: int, krylov: int, queue) -> None:
+    rng = np.random.default_rng(3)
+    mpo = heisenberg_mpo(sites)
+    legs = chain_legs(sites, bond)
+    ts = [BlockTensor.random((legs[j], mpo.phys, legs[j + 1].dual()), None, rng=rng) for j in range(sites)]
+    state = canonicalize(ChainState(ts, sites - 1), 0)
+    settings = SweepSettings((Stage(bond, 1, 0.0),), discard=0.0, energy_tol=1e-30, krylov_dim=krylov,
+                             eig_tol=1e-30, krylov_restarts=0)
+    search = GroundStateSearch(mpo, state, settings, rng)
+    t0 = time.perf_counter()
+    for _ in search.run():
+        pass
+    seconds = time.perf_counter() - t0
+    queue.put({"bond": bond, "seconds": seconds, "max_bond": max(search.state.bond_dims),
+               "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024})
+
+
+def sweep_figures(sites: int, bond: int, krylov: int) -> dict:
+    ctx = mp.get_context("spawn")
+    queue = ctx.Queue()
+    proc = ctx.Process(target=_sweep_worker, args=(sites, bond, krylov, queue))
+    proc.start()
+    out = queue.get()
+    proc.join()
+    return out
+
+
+def blas_info() -> dict:
+    try:
+        from threadpoolctl import threadpool_info
+        info = [{k: d.get(k) for k in ("internal_api", "num_threads", "version", "architecture")}
+                for d in threadpool_info() if d.get("user_api") == "blas"]
+    except ImportError:
+        cfg = np.show_config(mode="dicts") if "mode" in np.show_config.__code__.co_varnames else {}
+        info = [cfg.get("Build Dependencies", {}).get("blas", {})]
+    return {"blas": info, "cpu_count": os.cpu_count(),
+            "env": {k: os.environ[k] for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
+                                                 "OPENBLAS_CORETYPE", "MKL_NUM_THREADS") if k in os.environ}}
+
+
+def run_benchmark(quick: bool, progress=None) -> dict:
+    say = progress or (lambda text: None)
+    heff_bond = 256 if quick else 512
+    bonds = [32, 64, 128] if quick else [64, 128, 256, 512]
+    sites = 40 if quick else 100
+    say(f"effective Hamiltonian at bond {heff_bond}")
+    app = application_figures(heff_bond, 3 if quick else 5)
+    sweeps = []
+    for bond in bonds:
+        say(f"one sweep of {sites} sites at bond {bond}")
+        sweeps.append(sweep_figures(sites, bond, krylov=4 if quick else 8))
+    logb = np.log([s["bond"] for s in sweeps])
+    logt = np.log([s["seconds"] for s in sweeps])
+    slope = float(np.polyfit(logb, logt, 1)[0])
+    return {
+        "quick": quick, "python": platform.python_version(), "numpy": np.__version__,
+        **blas_info(),
+        "block_vs_dense": app["block_vs_dense"], "gemm_fraction": app["gemm_fraction"],
+        "sweep_exponent": slope,
+        "seconds_per_sweep": {str(s["bond"]): s["seconds"] for s in sweeps},
+        "peak_rss_mb": sweeps[-1]["peak_rss_mb"], "sweep_sites": sites,
+        "application": app, "sweeps": sweeps,
+        "goals": {"block_vs_dense": ">= 8", "gemm_fraction": ">= 0.5", "sweep_exponent": "<= 3.1",
+                  "peak_rss_mb": "< 2000"},
+    }
+
+
+def main(quick: bool) -> int:
+    result = run_benchmark(quick, progress=lambda t: print(f"bench: {t}", file=sys.stderr, flush=True))
+    print(json.dumps(result, indent=2))
+    return 0

@@ -1,0 +1,322 @@
+"""What the command-line verbs do with a run directory: run, resume, analyze, compare, bench.
+
+``run`` validates the config, builds the operator (refusing non-conserving or non-Hermitian
+chains before any solving), sweeps stage by stage with a checkpoint after every sweep, then
+writes the summary, the entanglement tables, comparison.json and the plots. ``resume``
+continues from the last checkpoint; the solver section of the run's config.yaml may be extended
+(more stages, larger bonds) but the model may not change. The first Ctrl-C finishes the current
+bond and checkpoints there; a second one quits at once, keeping the last checkpoint.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import signal
+import sys
+import threading
+import time
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+
+from mps import __version__
+from mps.pipeline.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
+from mps.pipeline.config import InputError, RunConfig, config_hash, dump_config, load_config
+from mps.chain.mpo import Mpo, OperatorError, build_mpo
+from mps.pipeline.rundir import CHECKPOINT, CONFIG, SUMMARY, SWEEPS, RunLock, write_json, write_table, write_text
+from mps.chain.state import product_state, random_state
+from mps.pipeline.tables import entanglement_tables, write_tables
+from mps.solver.sweep import (GroundStateSearch, Progress, Stage, SweepSettings, SweepStopped,
+                       energy_and_variance)
+
+SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds"]
+
+
+# ----------------------------------------------------------------------------- helpers
+def solver_hash(cfg: RunConfig) -> str:
+    text = json.dumps(cfg.solver.to_dict(), sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def build_operator(cfg: RunConfig) -> Mpo:
+    """The chain's MPO; a non-conserving or non-Hermitian chain is bad input (exit code 2)."""
+    fam = cfg.model.family_record()
+    try:
+        return build_mpo(fam.space(), cfg.model.sites, cfg.model.terms())
+    except OperatorError as exc:
+        raise InputError(f"model: {exc}") from None
+
+
+def sweep_settings(cfg: RunConfig) -> SweepSettings:
+    stages = tuple(Stage(s.bond, s.sweeps, s.noise) for s in cfg.solver.stages)
+    return SweepSettings(stages, cfg.solver.discard, cfg.solver.energy_tol, cfg.solver.krylov_dim,
+                         cfg.solver.eig_tol)
+
+
+class ProgressLine:
+    """One status line on stderr, redrawn in place on a terminal, one line per sweep otherwise."""
+
+    def __init__(self, settings: SweepSettings, stream=None):
+        self.stream = stream or sys.stderr
+        self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
+        self.total = sum(s.sweeps for s in settings.stages)
+        self.start = time.perf_counter()
+        self.sweep_times: list[float] = []
+        self.last = ""
+
+    def bond(self, step: int, steps: int, sweep: int) -> None:
+        if self.tty:
+            self._draw(f"sweep {sweep}: bond {step}/{steps}{self.last}", final=False)
+
+    def sweep(self, rec, done: int) -> None:
+        self.sweep_times.append(rec.seconds)
+        left = max(self.total - done, 0) * float(np.mean(self.sweep_times[-3:]))
+        delta = "" if math.isnan(rec.delta_energy) else f" dE {rec.delta_energy:+.2e}"
+        self.last = (f" | E {rec.energy:.10f}{delta} trunc {rec.truncation:.1e} D {rec.max_bond}"
+                     f" | {time.perf_counter() - self.start:.1f} s, <= {left:.0f} s left")
+        self._draw(f"sweep {rec.sweep} stage {rec.stage + 1} bond {rec.bond}{self.last}", final=True)
+
+    def _draw(self, text: str, final: bool) -> None:
+        if self.tty:
+            self.stream.write("\r\x1b[2K" + text + ("\n" if final else ""))
+        elif final:
+            self.stream.write(text + "\n")
+        self.stream.flush()
+
+    def say(self, text: str) -> None:
+        self.stream.write(text + "\n")
+        self.stream.flush()
+
+
+def _rng_from(state: dict | None, seed: int) -> np.random.Generator:
+    rng = np.random.default_rng(seed)
+    if state is not None:
+        rng.bit_generator.state = state
+    return rng
+
+
+def _history_rows(progress: Progress) -> list[list]:
+    return [[r.sweep, r.stage, r.bond, r.energy, r.delta_energy, r.truncation, r.max_entropy, r.seconds]
+            for r in progress.history]
+
+
+# ----------------------------------------------------------------------------- the search
+class StopRequest:
+    """First Ctrl-C: finish the current bond, checkpoint and stop. Second Ctrl-C: stop at once
+    (the checkpoint of the last finished sweep or bond stays on disk)."""
+
+    def __init__(self, show: ProgressLine):
+        self.requested = False
+        self.show = show
+        self.previous = None
+
+    def __enter__(self) -> "StopRequest":
+        if threading.current_thread() is threading.main_thread():
+            self.previous = signal.signal(signal.SIGINT, self._handle)
+        return self
+
+    def _handle(self, signum, frame) -> None:
+        if self.requested:
+            raise KeyboardInterrupt
+        self.requested = True
+        self.show.say("\nstopping after the current bond to save a checkpoint (Ctrl-C again to quit now)")
+
+    def __call__(self) -> bool:
+        return self.requested
+
+    def __exit__(self, *exc) -> None:
+        if self.previous is not None:
+            signal.signal(signal.SIGINT, self.previous)
+
+
+def _search(directory: Path, cfg: RunConfig, search: GroundStateSearch, rng: np.random.Generator,
+            show: ProgressLine) -> int:
+    """Sweep to the end, checkpointing after each sweep; returns the exit code."""
+    mhash, shash = config_hash(cfg.model), solver_hash(cfg)
+    sweep_no = search.progress.sweep + 1
+
+    def on_bond(step, steps):
+        show.bond(step, steps, sweep_no)
+
+    def checkpoint():
+        save_checkpoint(directory / CHECKPOINT, search.state, search.progress,
+                        rng.bit_generator.state, mhash, shash)
+
+    with StopRequest(show) as stop:
+        try:
+            for rec in search.run(on_bond=on_bond, should_stop=stop):
+                checkpoint()
+                write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
+                show.sweep(rec, len(search.progress.history))
+                sweep_no = rec.sweep + 1
+        except SweepStopped:
+            checkpoint()
+            show.say(f"interrupted; saved a checkpoint after bond step {search.progress.step} of sweep "
+                     f"{search.progress.sweep + 1} in {directory / CHECKPOINT}. "
+                     f"Continue with: chargewise resume {directory}")
+            return 130
+        except KeyboardInterrupt:
+            show.say(f"\ninterrupted; the last checkpoint in {directory / CHECKPOINT} is kept. "
+                     f"Continue with: chargewise resume {directory}")
+            return 130
+    return 0
+
+
+def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: GroundStateSearch, seconds: float,
+            show: ProgressLine) -> None:
+    energy, variance = energy_and_variance(search.state, mpo)
+    hist = search.progress.history
+    summary = {
+        "name": cfg.name, "family": cfg.model.family, "sites": cfg.model.sites,
+        "energy": energy, "energy_per_site": energy / cfg.model.sites, "variance": variance,
+        "converged": search.progress.converged, "sweeps": search.progress.sweep,
+        "max_bond": max(search.state.bond_dims), "truncation": hist[-1].truncation if hist else 0.0,
+        "seconds": seconds, "version": __version__,
+    }
+    _write_analysis(directory, cfg, search.state, summary)
+    write_json(directory / SUMMARY, summary)
+    show.say(f"E = {energy:.12f} ({energy / cfg.model.sites:.12f} per site), variance {variance:.2e}, "
+             f"{'converged' if search.progress.converged else 'NOT converged'} after "
+             f"{search.progress.sweep} sweeps")
+    _compare_and_draw(directory, cfg, search.state, show)
+    show.say(f"results in {directory}")
+
+
+def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict, renyi=None, cuts=None) -> None:
+    """Entanglement tables of every requested cut; the weight floor goes into the summary."""
+    space = cfg.model.family_record().space()
+    tables = entanglement_tables(state, space.charge_units, cfg.analysis, space.charge_names, renyi, cuts)
+    write_tables(directory, tables)
+    summary["weight_floor"] = cfg.analysis.weight_floor
+    summary["resolved_by"] = cfg.analysis.resolve
+
+
+def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine) -> None:
+    """comparison.json (fits, exact free fermions) and the plots, for an analysed run."""
+    from mps.pipeline.comparison import ComparisonSettings, write_comparison
+
+    settings = ComparisonSettings(window=cfg.analysis.fit_window, correlations=cfg.analysis.correlations)
+    report = write_comparison(directory, cfg, state, settings)
+    c = (report.get("central_charge") or {}).get("value")
+    k = (report.get("luttinger") or {}).get("value")
+    xi = (report.get("correlation_length") or {}).get("xi")
+    line = "fits: " + ", ".join(f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k))
+                                if value is not None)
+    if report.get("correlation_length"):
+        line += (f", correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
+                 else ", no exponential decay of charge correlations")
+    exact = report.get("exact") or {}
+    dev = (exact.get("max_deviation") or {}).get("probability") if isinstance(exact, dict) else None
+    if isinstance(dev, dict) and dev.get("value") is not None:
+        line += f"; max |p(q) - exact| = {dev['value']:.1e}"
+    if cfg.output.plots:
+        from mps.pipeline.plots import draw_all
+
+        drawn = draw_all(directory)
+        line += f"; {len(drawn)} plots in {directory / 'plots'}"
+    show.say(line)
+
+
+# ----------------------------------------------------------------------------- verbs
+def run(config_path: str, out: str | None = None) -> int:
+    cfg = load_config(config_path)
+    if out is not None:
+        cfg = replace(cfg, output=replace(cfg.output, dir=str(out)))
+    mpo = build_operator(cfg)
+    directory = Path(cfg.output.dir)
+    if (directory / CHECKPOINT).exists():
+        raise InputError(f"{directory}: already holds a run; continue it with "
+                         f"'chargewise resume {directory}' or choose another output.dir / --out")
+    directory.mkdir(parents=True, exist_ok=True)
+    with RunLock(directory):
+        write_text(directory / CONFIG, dump_config(cfg))
+        rng = np.random.default_rng(cfg.solver.seed)
+        target = cfg.model.integer_charge()
+        first = cfg.solver.stages[0].bond
+        if cfg.solver.init == "product":
+            state = product_state(mpo.phys, cfg.model.sites, target)
+        else:
+            state = random_state(mpo.phys, cfg.model.sites, target, min(first, 16), rng)
+        settings = sweep_settings(cfg)
+        search = GroundStateSearch(mpo, state, settings, rng)
+        show = ProgressLine(settings)
+        show.say(f"{cfg.name}: {cfg.model.family}, {cfg.model.sites} sites, "
+                 f"charge {cfg.model.charge}, operator bond {max(mpo.bond_dims)}")
+        t0 = time.perf_counter()
+        code = _search(directory, cfg, search, rng, show)
+        if code:
+            return code
+        _finish(directory, cfg, mpo, search, time.perf_counter() - t0, show)
+    return 0
+
+
+def resume(directory: str) -> int:
+    directory = Path(directory)
+    if not (directory / CONFIG).is_file():
+        raise InputError(f"{directory}: not a run directory (no {CONFIG})")
+    cfg = load_config(directory / CONFIG)
+    cfg = replace(cfg, output=replace(cfg.output, dir=str(directory)))
+    with RunLock(directory):
+        state, progress, rng_state, meta = load_checkpoint(directory / CHECKPOINT)
+        if meta["model_hash"] != config_hash(cfg.model):
+            raise CheckpointError(f"{directory}: the model in {CONFIG} differs from the one the checkpoint "
+                                  "was computed for; only the solver section may change on resume")
+        mpo = build_operator(cfg)
+        settings = sweep_settings(cfg)
+        if meta["solver_hash"] != solver_hash(cfg):
+            progress.converged = False
+        rng = _rng_from(rng_state, cfg.solver.seed)
+        search = GroundStateSearch(mpo, state, settings, rng, progress)
+        show = ProgressLine(settings)
+        where = f", bond step {progress.step}" if progress.step else ""
+        show.say(f"{cfg.name}: resuming after sweep {progress.sweep}{where} (stage {progress.stage + 1})")
+        t0 = time.perf_counter()
+        code = _search(directory, cfg, search, rng, show)
+        if code:
+            return code
+        previous = sum(r.seconds for r in progress.history)
+        _finish(directory, cfg, mpo, search, time.perf_counter() - t0 + previous, show)
+    return 0
+
+
+def load_run(directory: str | Path):
+    """Config and stored state of a finished or interrupted run (for analysis and notebooks)."""
+    directory = Path(directory)
+    if not (directory / CONFIG).is_file():
+        raise InputError(f"{directory}: not a run directory (no {CONFIG})")
+    cfg = load_config(directory / CONFIG)
+    state, progress, _, meta = load_checkpoint(directory / CHECKPOINT)
+    if meta["model_hash"] != config_hash(cfg.model):
+        raise CheckpointError(f"{directory}: {CONFIG} does not match the stored state")
+    return cfg, state, progress
+
+
+def analyze(directory: str, renyi=None, cuts=None) -> int:
+    """Recompute the entanglement tables from the stored state, without solving again."""
+    directory = Path(directory)
+    cfg, state, _ = load_run(directory)
+    with RunLock(directory):
+        summary_path = directory / SUMMARY
+        summary = json.loads(summary_path.read_text()) if summary_path.is_file() else {}
+        _write_analysis(directory, cfg, state, summary, renyi, cuts)
+        write_json(summary_path, summary)
+    print(f"tables written to {directory}", file=sys.stderr)
+    return 0
+
+
+def bench(quick: bool = False) -> int:
+    from mps.pipeline.bench import main as bench_main
+
+    return bench_main(quick)
+
+
+def compare(directory: str) -> int:
+    """Redo the fits, the exact free-fermion comparison and the plots of a finished run."""
+    directory = Path(directory)
+    cfg, state, _ = load_run(directory)
+    with RunLock(directory):
+        _compare_and_draw(directory, cfg, state, ProgressLine(sweep_settings(cfg)))
+    return 0
