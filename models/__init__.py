@@ -24,9 +24,8 @@ from types import ModuleType
 
 import numpy as np
 
-from mps.chain.lattice import LocalSpace, Term
-
 from models import fermions, xxz
+from mps.chain.lattice import LocalSpace, Term
 
 SingleParticle = tuple[np.ndarray, float, float]
 

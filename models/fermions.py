@@ -13,9 +13,8 @@ from collections.abc import Mapping
 
 import numpy as np
 
-from mps.chain.lattice import LocalSpace, Term
-
 from models.patterns import dimerised, staggered
+from mps.chain.lattice import LocalSpace, Term
 
 NAME = "fermions"
 DESCRIPTION = "spinless fermions (t-V chain): hopping t, repulsion V, potentials mu and mu_stag, dimerisation"

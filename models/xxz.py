@@ -13,9 +13,8 @@ from collections.abc import Mapping
 
 import numpy as np
 
-from mps.chain.lattice import LocalSpace, Term
-
 from models.patterns import dimerised, staggered
+from mps.chain.lattice import LocalSpace, Term
 
 NAME = "xxz"
 DESCRIPTION = "spin-1/2 xxz chain: J, anisotropy Delta, fields h and h_stag, dimerisation"

@@ -6,10 +6,11 @@ from functools import lru_cache
 
 import numpy as np
 
-import reference_ed as ed
 from models import get_family
 from mps.chain.mpo import build_mpo
-from mps.solver.sweep import Stage, SweepSettings, find_ground_state
+from mps.solver.sweep import Stage, SweepSettings, solve_sector
+
+import reference_ed as ed
 
 SETTINGS = SweepSettings((Stage(32, 2, 1e-5), Stage(128, 8, 0.0)), discard=1e-14, energy_tol=1e-12)
 
@@ -29,7 +30,7 @@ def solve(family: str, sites: int, couplings: dict, charge: dict, settings=SETTI
     space = fam.space()
     mpo = build_mpo(space, sites, fam.terms(sites, couplings))
     target = tuple(int(round(charge[n] / u)) for n, u in zip(space.charge_names, space.charge_units))
-    return mpo, find_ground_state(mpo, target, settings, np.random.default_rng(seed))
+    return mpo, solve_sector(mpo, target, settings, np.random.default_rng(seed))
 
 
 def reference(family: str, sites: int, couplings: dict, charge: dict):

@@ -14,7 +14,6 @@ from mps.chain.lattice import LocalSpace, Term
 
 import reference_ed as ref
 
-
 # ----------------------------------------------------------------------------- helpers
 
 

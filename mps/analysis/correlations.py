@@ -22,8 +22,8 @@ import numpy as np
 from mps.blocks.charges import Leg
 from mps.blocks.contract import contract
 from mps.blocks.decompose import qr, scale_leg
-from mps.chain.state import ChainState, canonicalize
 from mps.blocks.tensor import BlockTensor
+from mps.chain.state import ChainState, canonicalize
 
 __all__ = ["local_expectations", "connected_charge_correlations", "correlation_length"]
 

@@ -212,14 +212,33 @@ def fuse(legs: tuple[Leg, ...], flow: int = 1) -> FusionMap:
     return FusionMap(legs, fused, entries)
 
 
+def reachable_totals(local: np.ndarray, sites: int) -> np.ndarray:
+    """All total integer charge vectors of ``sites`` sites with local charges ``local`` (dim, k).
+
+    Dynamic programme over sites on the set of reachable vectors, R_0 = {0} and
+    R_{s+1} = {r + q : r in R_s, q a local charge}, with the set held as a boolean grid over
+    its bounding box (cost ~ dim * sites * box, fine for k = 1 up to 10^4 sites).
+    Returns the reachable vectors as rows (m, k), sorted lexicographically.
+    """
+    local = np.asarray(local, dtype=np.int64)
+    local = local.reshape(len(local), -1)
+    lo = local.min(axis=0)
+    shifted = local - lo
+    span = shifted.max(axis=0)
+    grid = np.ones((1,) * local.shape[1], dtype=bool)  # shifted sums of zero sites: {0}
+    for _ in range(sites):
+        grown = np.zeros(tuple(np.add(grid.shape, span)), dtype=bool)
+        for q in shifted:
+            grown[tuple(slice(a, a + n) for a, n in zip(q, grid.shape))] |= grid
+        grid = grown
+    return np.argwhere(grid) + sites * lo
+
+
+
 def reachable_charges(site_charges: np.ndarray, sites: int) -> set[Charge]:
     """Set of total integer charges reachable as a sum of ``sites`` local charges."""
-    local = {tuple(int(c) for c in np.atleast_1d(q)) for q in np.asarray(site_charges)}
-    reach = {tuple(0 for _ in next(iter(local)))}
-    for _ in range(sites):
-        reach = {tuple(a + b for a, b in zip(r, q)) for r in reach for q in local}
-    return reach
+    return {tuple(int(c) for c in row) for row in reachable_totals(site_charges, sites)}
 
 
 __all__ = ["Leg", "FusionMap", "fuse", "leg_from_states", "combined_charges", "encode",
-           "reachable_charges"]
+           "reachable_charges", "reachable_totals"]

@@ -13,8 +13,8 @@ applies the same operator many times pays for it once.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from collections import OrderedDict
+from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np

@@ -24,8 +24,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from mps.blocks.charges import Leg, leg_from_states
-from mps.chain.lattice import LocalSpace, Term
 from mps.blocks.tensor import BlockTensor
+from mps.chain.lattice import LocalSpace, Term
 
 
 class OperatorError(ValueError):

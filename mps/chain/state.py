@@ -14,8 +14,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from mps.blocks.charges import Leg, reachable_charges
-from mps.blocks.decompose import lq, qr
 from mps.blocks.contract import contract
+from mps.blocks.decompose import lq, qr
 from mps.blocks.tensor import BlockTensor
 
 

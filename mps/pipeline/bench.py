@@ -30,11 +30,11 @@ import numpy as np
 from models import get_family
 from mps.blocks.charges import Leg
 from mps.blocks.contract import PlannedChain, contract, plan_contraction
-from mps.solver.effective import apply_merged, merge_pair
+from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import build_mpo
 from mps.chain.state import ChainState, canonicalize
-from mps.solver.sweep import GroundStateSearch, Stage, SweepSettings
-from mps.blocks.tensor import BlockTensor
+from mps.solver.effective import apply_merged, merge_pair
+from mps.solver.sweep import SectorSweeper, Stage, SweepSettings
 
 
 def gaussian_leg(bond: int, parity: int, flow: int, width: float = 2.5, cap: int | None = None) -> Leg:
@@ -136,9 +136,9 @@ def _sweep_worker(sites: int, bond: int, krylov: int, queue) -> None:
     legs = chain_legs(sites, bond)
     ts = [BlockTensor.random((legs[j], mpo.phys, legs[j + 1].dual()), None, rng=rng) for j in range(sites)]
     state = canonicalize(ChainState(ts, sites - 1), 0)
-    settings = SweepSettings((Stage(bond, 1, 0.0),), discard=0.0, energy_tol=1e-30, krylov_dim=krylov,
-                             eig_tol=1e-30, krylov_restarts=0)
-    search = GroundStateSearch(mpo, state, settings, rng)
+    settings = SweepSettings((Stage(bond, 1, 0.0),), discard=0.0, energy_tol=1e-30, lanczos_vectors=krylov,
+                             lanczos_tol=1e-30, lanczos_restarts=0)
+    search = SectorSweeper(mpo, state, settings, rng)
     t0 = time.perf_counter()
     for _ in search.run():
         pass

@@ -13,8 +13,8 @@ never overwritten. Nothing is unpickled: only numeric arrays and JSON text are s
 from __future__ import annotations
 
 import hashlib
-import math
 import json
+import math
 import os
 from dataclasses import asdict
 from pathlib import Path
@@ -23,10 +23,10 @@ import h5py
 import numpy as np
 
 from mps.blocks.charges import Leg
-from mps.pipeline.config import InputError
-from mps.chain.state import BondSpectrum, ChainState
-from mps.solver.sweep import Progress, SweepRecord
 from mps.blocks.tensor import BlockTensor
+from mps.chain.state import BondSpectrum, ChainState
+from mps.pipeline.errors import InputError
+from mps.solver.sweep import Progress, SweepRecord
 
 FORMAT = "chargewise-checkpoint"
 FORMAT_VERSION = 1

@@ -18,7 +18,9 @@ from collections.abc import Callable, Sequence
 from typing import Any
 
 from mps import __version__
-from mps.pipeline.config import InputError, dump_config, load_config
+from mps.pipeline.config import load_config
+from mps.pipeline.errors import InputError
+from mps.pipeline.schema import dump_config
 
 PROG = "chargewise"
 

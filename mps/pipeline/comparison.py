@@ -51,7 +51,12 @@ import numpy as np
 
 from mps import __version__
 from mps.analysis import correlations as _correlations
-from mps.pipeline.config import InputError, RunConfig
+from mps.analysis.resolved import CutResolved
+from mps.chain.state import ChainState
+from mps.pipeline.errors import InputError
+from mps.pipeline.rundir import write_json
+from mps.pipeline.schema import RunConfig
+from mps.pipeline.tables import Table, charge_value, renyi_label, resolve_state, write_tables
 from mps.theory.fieldtheory import (
     default_window,
     equipartition,
@@ -63,11 +68,6 @@ from mps.theory.fieldtheory import (
     resolved_entropy_leading,
 )
 from mps.theory.freefermions import charge_correlations, correlation_matrix, resolve_all_cuts
-from mps.analysis.resolved import CutResolved
-from mps.pipeline.rundir import write_json
-from mps.chain.state import ChainState
-from mps.pipeline.tables import Table, charge_value, renyi_label, resolve_state, write_tables
-
 
 COMPARISON = "comparison.json"
 EXACT_ENTROPIES = "exact_entropies"

@@ -31,9 +31,13 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 from matplotlib.ticker import MaxNLocator, MultipleLocator
 
-from mps.theory.fieldtheory import (chord_length, gaussian_probability, renyi_prefactor,
-                             resolved_entropy_leading)
 from mps.pipeline.rundir import read_table
+from mps.theory.fieldtheory import (
+    chord_length,
+    gaussian_probability,
+    renyi_prefactor,
+    resolved_entropy_leading,
+)
 
 PLOTS = "plots"
 DPI = 150

@@ -14,7 +14,7 @@ import math
 import os
 from pathlib import Path
 
-from mps.pipeline.config import InputError
+from mps.pipeline.errors import InputError
 
 CONFIG = "config.yaml"
 CHECKPOINT = "state.h5"

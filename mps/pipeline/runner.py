@@ -23,14 +23,24 @@ from pathlib import Path
 import numpy as np
 
 from mps import __version__
-from mps.pipeline.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
-from mps.pipeline.config import InputError, RunConfig, config_hash, dump_config, load_config
 from mps.chain.mpo import Mpo, OperatorError, build_mpo
-from mps.pipeline.rundir import CHECKPOINT, CONFIG, SUMMARY, SWEEPS, RunLock, write_json, write_table, write_text
 from mps.chain.state import product_state, random_state
+from mps.pipeline.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
+from mps.pipeline.config import config_hash, load_config
+from mps.pipeline.errors import InputError
+from mps.pipeline.rundir import (
+    CHECKPOINT,
+    CONFIG,
+    SUMMARY,
+    SWEEPS,
+    RunLock,
+    write_json,
+    write_table,
+    write_text,
+)
+from mps.pipeline.schema import RunConfig, dump_config
 from mps.pipeline.tables import entanglement_tables, write_tables
-from mps.solver.sweep import (GroundStateSearch, Progress, Stage, SweepSettings, SweepStopped,
-                       energy_and_variance)
+from mps.solver.sweep import Progress, SectorSweeper, Stage, SweepSettings, SweepStopped, energy_and_variance
 
 SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds"]
 
@@ -51,9 +61,11 @@ def build_operator(cfg: RunConfig) -> Mpo:
 
 
 def sweep_settings(cfg: RunConfig) -> SweepSettings:
-    stages = tuple(Stage(s.bond, s.sweeps, s.noise) for s in cfg.solver.stages)
-    return SweepSettings(stages, cfg.solver.discard, cfg.solver.energy_tol, cfg.solver.krylov_dim,
-                         cfg.solver.eig_tol)
+    """The solver section as the sweep engine's settings."""
+    sol = cfg.solver
+    return SweepSettings(tuple(Stage(s.bond, s.sweeps, s.admix) for s in sol.stages), discard=sol.discard,
+                         energy_tol=sol.energy_tol, lanczos_vectors=sol.lanczos_vectors,
+                         lanczos_tol=sol.lanczos_tol, lanczos_restarts=sol.lanczos_restarts)
 
 
 class ProgressLine:
@@ -132,7 +144,7 @@ class StopRequest:
             signal.signal(signal.SIGINT, self.previous)
 
 
-def _search(directory: Path, cfg: RunConfig, search: GroundStateSearch, rng: np.random.Generator,
+def _search(directory: Path, cfg: RunConfig, search: SectorSweeper, rng: np.random.Generator,
             show: ProgressLine) -> int:
     """Sweep to the end, checkpointing after each sweep; returns the exit code."""
     mhash, shash = config_hash(cfg.model), solver_hash(cfg)
@@ -165,7 +177,7 @@ def _search(directory: Path, cfg: RunConfig, search: GroundStateSearch, rng: np.
     return 0
 
 
-def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: GroundStateSearch, seconds: float,
+def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: SectorSweeper, seconds: float,
             show: ProgressLine) -> None:
     energy, variance = energy_and_variance(search.state, mpo)
     hist = search.progress.history
@@ -241,7 +253,7 @@ def run(config_path: str, out: str | None = None) -> int:
         else:
             state = random_state(mpo.phys, cfg.model.sites, target, min(first, 16), rng)
         settings = sweep_settings(cfg)
-        search = GroundStateSearch(mpo, state, settings, rng)
+        search = SectorSweeper(mpo, state, settings, rng)
         show = ProgressLine(settings)
         show.say(f"{cfg.name}: {cfg.model.family}, {cfg.model.sites} sites, "
                  f"charge {cfg.model.charge}, operator bond {max(mpo.bond_dims)}")
@@ -269,7 +281,7 @@ def resume(directory: str) -> int:
         if meta["solver_hash"] != solver_hash(cfg):
             progress.converged = False
         rng = _rng_from(rng_state, cfg.solver.seed)
-        search = GroundStateSearch(mpo, state, settings, rng, progress)
+        search = SectorSweeper(mpo, state, settings, rng, progress)
         show = ProgressLine(settings)
         where = f", bond step {progress.step}" if progress.step else ""
         show.say(f"{cfg.name}: resuming after sweep {progress.sweep}{where} (stage {progress.stage + 1})")

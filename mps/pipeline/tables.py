@@ -12,12 +12,12 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
-
-from mps.pipeline.config import AnalysisConfig, InputError
 from mps.analysis.entanglement import default_alphas, entanglement_spectrum, resolve_cut, resolve_cut_joint
 from mps.analysis.resolved import CutResolved
-from mps.pipeline.rundir import write_table
 from mps.chain.state import ChainState
+from mps.pipeline.errors import InputError
+from mps.pipeline.rundir import write_table
+from mps.pipeline.schema import AnalysisConfig
 
 
 @dataclass(frozen=True)

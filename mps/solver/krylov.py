@@ -24,12 +24,12 @@ class EigenResult:
 
 
 def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarray,
-                     krylov_dim: int = 24, tol: float = 1e-10, max_restarts: int = 4,
+                     lanczos_vectors: int = 24, tol: float = 1e-10, max_restarts: int = 4,
                      rng: np.random.Generator | None = None) -> EigenResult:
     """Lowest eigenvalue and normalised eigenvector of the Hermitian operator ``matvec``.
 
     Stops when the residual norm ||H x - E x|| falls below ``tol`` or after ``max_restarts``
-    restarts of a ``krylov_dim``-dimensional Krylov space from the current Ritz vector.
+    restarts of a ``lanczos_vectors``-dimensional Krylov space from the current Ritz vector.
     """
     x = np.array(start, copy=True)
     n = x.size
@@ -41,7 +41,7 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
     x /= nrm
     apps = 0
     value, resid = np.nan, np.inf
-    m_max = max(2, min(krylov_dim, n))
+    m_max = max(2, min(lanczos_vectors, n))
     for _ in range(max_restarts + 1):
         basis = np.empty((m_max, n), dtype=x.dtype)
         alpha, beta = [], []

@@ -3,7 +3,7 @@
 A sweep moves the two-site window left to right and back. At every bond the effective
 Hamiltonian's lowest eigenvector (restarted Lanczos, warm-started from the current two-site
 tensor) replaces the two site tensors; an SVD ranked across all charge sectors truncates it to
-the stage's bond cap and discarded-weight threshold. In stages with ``noise`` > 0 a small random
+the stage's bond cap and discarded-weight threshold. In stages with ``admix`` > 0 a small random
 admixture in every allowed block of the two-site tensor lets charge sectors that the state does
 not yet hold appear on the bond (a simple form of the perturbation of White, PRB 72, 180403
 (2005)); the last stage normally runs without it.
@@ -24,11 +24,18 @@ import numpy as np
 
 from mps.blocks.contract import contract
 from mps.blocks.decompose import scale_leg, svd
-from mps.solver.effective import TwoSiteOperator, grow_left, grow_right, left_boundary, merge_pair, right_boundary
-from mps.solver.krylov import lowest_eigenpair
+from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import Mpo
 from mps.chain.state import BondSpectrum, ChainState, canonicalize, product_state, random_state
-from mps.blocks.tensor import BlockTensor
+from mps.solver.effective import (
+    TwoSiteOperator,
+    grow_left,
+    grow_right,
+    left_boundary,
+    merge_pair,
+    right_boundary,
+)
+from mps.solver.krylov import lowest_eigenpair
 
 
 @dataclass(frozen=True)
@@ -37,7 +44,7 @@ class Stage:
 
     bond: int
     sweeps: int
-    noise: float = 0.0
+    admix: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -45,14 +52,14 @@ class SweepSettings:
     stages: tuple[Stage, ...]
     discard: float = 1e-10
     energy_tol: float = 1e-9
-    krylov_dim: int = 24
-    eig_tol: float = 1e-10
-    krylov_restarts: int = 4
+    lanczos_vectors: int = 24
+    lanczos_tol: float = 1e-10
+    lanczos_restarts: int = 4
 
-    def lanczos_tol(self, stage: int) -> float:
-        """Residual tolerance of the eigensolver: ``eig_tol`` in the last stage (it sets the
+    def residual_tol(self, stage: int) -> float:
+        """Residual tolerance of the eigensolver: ``lanczos_tol`` in the last stage (it sets the
         accuracy of the final state, hence of every Schmidt value), looser before."""
-        return self.eig_tol if stage == len(self.stages) - 1 else max(self.eig_tol, 1e-5)
+        return self.lanczos_tol if stage == len(self.stages) - 1 else max(self.lanczos_tol, 1e-5)
 
 
 @dataclass(frozen=True)
@@ -90,11 +97,11 @@ class Progress:
 
 
 class SweepStopped(Exception):
-    """Raised by :meth:`GroundStateSearch.run` when asked to stop: the state, environments and
+    """Raised by :meth:`SectorSweeper.run` when asked to stop: the state, environments and
     progress are consistent at a bond boundary, so a checkpoint taken now resumes exactly."""
 
 
-def _noise(theta: BlockTensor, amount: float, rng: np.random.Generator) -> BlockTensor:
+def _admix(theta: BlockTensor, amount: float, rng: np.random.Generator) -> BlockTensor:
     if amount <= 0:
         return theta
     r = BlockTensor.random(theta.legs, theta.charge, rng=rng, dtype=theta.dtype)
@@ -102,7 +109,7 @@ def _noise(theta: BlockTensor, amount: float, rng: np.random.Generator) -> Block
     return out / out.norm()
 
 
-class GroundStateSearch:
+class SectorSweeper:
     """Two-site sweeps of ``state`` under ``mpo``; iterate :meth:`run` to advance sweep by sweep."""
 
     def __init__(self, mpo: Mpo, state: ChainState, settings: SweepSettings, rng: np.random.Generator,
@@ -141,9 +148,9 @@ class GroundStateSearch:
             self._pairs[j] = merge_pair(ws[j], ws[j + 1])
         op = TwoSiteOperator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
         res = lowest_eigenpair(op.matvec, theta.data.astype(op.dtype, copy=False),
-                               krylov_dim=self.settings.krylov_dim, tol=tol,
-                               max_restarts=self.settings.krylov_restarts, rng=self.rng)
-        theta = _noise(op.wrap(res.vector), stage.noise, self.rng)
+                               lanczos_vectors=self.settings.lanczos_vectors, tol=tol,
+                               max_restarts=self.settings.lanczos_restarts, rng=self.rng)
+        theta = _admix(op.wrap(res.vector), stage.admix, self.rng)
         cut = svd(theta, (0, 1), (2, 3), max_bond=stage.bond, discard=self.settings.discard,
                   min_value=1e-15)
         norm = math.sqrt(sum(float(np.sum(v**2)) for v in cut.values))
@@ -157,7 +164,7 @@ class GroundStateSearch:
         n = self.state.sites
         ts, ws = self.state.tensors, self.mpo.tensors
         p = self.progress
-        tol = self.settings.lanczos_tol(p.stage)
+        tol = self.settings.residual_tol(p.stage)
         steps = 2 * (n - 1)
         order = list(range(n - 1)) + list(range(n - 2, -1, -1))
         energy, worst = p.step_energy, p.step_truncation
@@ -205,7 +212,7 @@ class GroundStateSearch:
             energy, worst, seconds = self._sweep(stage, on_bond, should_stop)
             delta = energy - p.energy if math.isfinite(p.energy) else math.nan
             last = p.stage == len(stages) - 1
-            p.converged = bool(last and stage.noise == 0 and math.isfinite(delta)
+            p.converged = bool(last and stage.admix == 0 and math.isfinite(delta)
                                and abs(delta) < self.settings.energy_tol)
             p.sweep += 1
             p.in_stage += 1
@@ -244,15 +251,15 @@ def overlap_norm(state: ChainState) -> float:
     return state.tensors[state.center].norm() ** 2
 
 
-def find_ground_state(mpo: Mpo, target, settings: SweepSettings, rng: np.random.Generator,
-                      init: str = "random", init_bond: int = 16) -> GroundStateSearch:
+def solve_sector(mpo: Mpo, target, settings: SweepSettings, rng: np.random.Generator,
+                      init: str = "random", init_bond: int = 16) -> SectorSweeper:
     """Run every stage from a random (or product) state in the sector ``target``; for notebooks
     and tests. The finished search holds the state, its Schmidt values and the sweep history."""
     if init == "product":
         state = product_state(mpo.phys, mpo.sites, target)
     else:
         state = random_state(mpo.phys, mpo.sites, target, init_bond, rng)
-    search = GroundStateSearch(mpo, state, settings, rng)
+    search = SectorSweeper(mpo, state, settings, rng)
     for _ in search.run():
         pass
     return search

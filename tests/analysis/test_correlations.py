@@ -7,22 +7,27 @@ from functools import lru_cache
 import numpy as np
 import pytest
 
-import reference_ed as ed
-from chains import CASES, reference, solve
 from models import get_family
-from mps.analysis.correlations import (bulk_profile, connected_charge_correlations, correlation_length,
-                              local_expectations)
-from mps.theory.freefermions import charge_correlations, correlation_matrix
+from mps.analysis.correlations import (
+    bulk_profile,
+    connected_charge_correlations,
+    correlation_length,
+    local_expectations,
+)
 from mps.chain.state import canonicalize
 from mps.solver.sweep import Stage, SweepSettings
+from mps.theory.freefermions import charge_correlations, correlation_matrix
+
+import reference_ed as ed
+from chains import CASES, reference, solve
 
 # No truncation at L <= 12 (bond 64 holds every state): the only error left is the eigensolver's,
 # so correlations can be compared with exact diagonalisation to 1e-8. With a discarded-weight
 # threshold of 1e-14 the long-distance correlations of these chains are off by ~1e-8.
-EXACT = SweepSettings((Stage(16, 2, 1e-5), Stage(64, 4, 0.0)), discard=0.0, energy_tol=1e-13, eig_tol=1e-12)
+EXACT = SweepSettings((Stage(16, 2, 1e-5), Stage(64, 4, 0.0)), discard=0.0, energy_tol=1e-13, lanczos_tol=1e-12)
 # Gapped free chain of 40 sites: bond ~40 reaches discarded weight 1e-14.
 GAPPED = SweepSettings((Stage(16, 2, 1e-5), Stage(64, 6, 0.0)), discard=1e-14, energy_tol=1e-13,
-                       eig_tol=1e-12)
+                       lanczos_tol=1e-12)
 
 SITE_CHARGE = {"xxz": np.array([-0.5, 0.5]), "fermions": np.array([0.0, 1.0])}  # sorted basis
 ED_CASES = ["xxz-all-couplings", "xxz-magnetised", "fermions-low-filling"]

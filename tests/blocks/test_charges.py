@@ -12,7 +12,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from mps.blocks.charges import Leg, fuse, leg_from_states, reachable_charges
+from mps.blocks.charges import Leg, fuse, leg_from_states, reachable_charges, reachable_totals
 from mps.blocks.testing import leg_strategy
 
 FAST = settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -186,3 +186,22 @@ def test_reachable_charges_match_brute_force(k, data):
     brute = {tuple(int(c) for c in np.sum(np.array(choice, dtype=np.int64).reshape(sites, k), axis=0))
              for choice in itertools.product(local, repeat=sites)}
     assert reachable_charges(np.array(local), sites) == brute
+
+
+@pytest.mark.parametrize(
+    "local",
+    [
+        [[-1], [1]],
+        [[0], [1]],
+        [[0, 0], [1, 1], [1, -1], [2, 0]],  # spinful fermion site: (N, 2 S^z)
+        [[-2], [0], [2]],
+        [[0], [3]],
+    ],
+)
+@pytest.mark.parametrize("sites", [1, 2, 5])
+def test_reachable_totals_matches_enumeration(local, sites):
+    # Source: exact -- brute-force enumeration of all product states.
+    local = np.array(local)
+    brute = {tuple(np.sum(c, axis=0)) for c in itertools.product(local, repeat=sites)}
+    got = reachable_totals(local, sites)
+    assert {tuple(r) for r in got} == brute and len(got) == len(brute)

@@ -10,8 +10,7 @@ from hypothesis import strategies as st
 from mps.blocks.charges import Leg
 from mps.blocks.contract import contract, plan_contraction, run_plan
 from mps.blocks.tensor import BlockTensor
-from mps.blocks.testing import (assert_matches_dense, charge_pool_strategy, leg_strategy,
-                         total_charge_strategy)
+from mps.blocks.testing import assert_matches_dense, charge_pool_strategy, leg_strategy, total_charge_strategy
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 TOL = 1e-12

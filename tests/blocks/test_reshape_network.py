@@ -13,8 +13,13 @@ from mps.blocks.charges import FusionMap, Leg
 from mps.blocks.network import contract_network
 from mps.blocks.reshape import fuse_legs, split_leg
 from mps.blocks.tensor import BlockTensor
-from mps.blocks.testing import (assert_matches_dense, charge_pool_strategy, check_invariants, leg_strategy,
-                         tensor_strategy)
+from mps.blocks.testing import (
+    assert_matches_dense,
+    charge_pool_strategy,
+    check_invariants,
+    leg_strategy,
+    tensor_strategy,
+)
 
 FAST = settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 TOL = 1e-12

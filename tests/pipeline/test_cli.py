@@ -13,7 +13,8 @@ import pytest
 import yaml
 
 from mps.pipeline import cli
-from mps.pipeline.config import ConfigError, InputError, load_config, parse_config
+from mps.pipeline.config import load_config, parse_config
+from mps.pipeline.errors import ConfigError, InputError
 
 REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "configs" / "demo-staggered-chain.yaml"
@@ -40,7 +41,7 @@ def test_check_demo_prints_resolved_yaml():
     assert proc.stderr == ""
     printed = yaml.safe_load(proc.stdout)
     assert parse_config(printed) == load_config(DEMO)
-    assert printed["solver"]["krylov_dim"] == 24  # a default, filled in
+    assert printed["solver"]["lanczos_vectors"] == 24  # a default, filled in
 
 
 def test_bad_config_exits_2_with_one_line(tmp_path):

@@ -17,8 +17,8 @@ import numpy as np
 import pytest
 import yaml
 
-from chains import solve
 from models import get_family
+from mps.analysis.entanglement import default_alphas, resolve_cut
 from mps.pipeline import runner
 from mps.pipeline.comparison import (
     COMPARISON,
@@ -28,11 +28,11 @@ from mps.pipeline.comparison import (
     write_comparison,
 )
 from mps.pipeline.config import parse_config
-from mps.analysis.entanglement import default_alphas, resolve_cut
+from mps.pipeline.rundir import read_table
 from mps.theory.fieldtheory import luttinger_bethe_ansatz
 from mps.theory.freefermions import resolve_all_cuts
-from mps.pipeline.rundir import read_table
-from mps.solver.sweep import Stage, SweepSettings
+
+from chains import solve
 
 RENYI = (1.0, 2.0, 3.0, math.inf)
 TOP_KEYS = {"name", "family", "sites", "couplings", "charge", "renyi", "version", "window",
@@ -42,7 +42,7 @@ TOP_KEYS = {"name", "family", "sites", "couplings", "charge", "renyi", "version"
 def config(family: str, sites: int, couplings: dict, charge: dict, stages, **solver) -> dict:
     return {"name": f"{family}-{sites}", "model": {"family": family, "sites": sites, "couplings": couplings,
                                                    "charge": charge},
-            "solver": {"stages": [{"bond": b, "sweeps": s, "noise": z} for b, s, z in stages], **solver},
+            "solver": {"stages": [{"bond": b, "sweeps": s, "admix": z} for b, s, z in stages], **solver},
             "analysis": {"renyi": [1, 2, 3, "inf"]}}
 
 
@@ -55,9 +55,7 @@ FREE = config("fermions", 64, {"t": 1.0, "dimer": 0.3, "V": 0.0}, {"N": 32},
 def free_dimerised():
     """(cfg, state) of the dimerised free chain of 64 sites at half filling (~15 s of sweeps)."""
     cfg = parse_config(FREE)
-    st = cfg.solver
-    settings = SweepSettings(tuple(Stage(s.bond, s.sweeps, s.noise) for s in st.stages), st.discard,
-                             st.energy_tol, st.krylov_dim, st.eig_tol)
+    settings = runner.sweep_settings(cfg)
     _, search = solve(cfg.model.family, cfg.model.sites, cfg.model.couplings, cfg.model.charge, settings)
     return cfg, search.state
 
@@ -189,9 +187,7 @@ def test_xxz_luttinger_and_central_charge_from_solver():
     # Peschel 1975) and fitted c within 5 % of 1 (Calabrese and Cardy 2004). About 3-4 minutes.
     cfg = parse_config(config("xxz", 128, {"J": 1.0, "Delta": 0.5}, {"Sz": 0},
                               [(32, 4, 1e-5), (96, 6, 0.0)], discard=1e-10, energy_tol=1e-9))
-    st = cfg.solver
-    settings = SweepSettings(tuple(Stage(s.bond, s.sweeps, s.noise) for s in st.stages), st.discard,
-                             st.energy_tol, st.krylov_dim, st.eig_tol)
+    settings = runner.sweep_settings(cfg)
     _, search = solve("xxz", 128, cfg.model.couplings, cfg.model.charge, settings)
     rep = compare_run(cfg, search.state)
     assert rep["luttinger"]["bethe_ansatz"] == pytest.approx(0.75, rel=1e-14)

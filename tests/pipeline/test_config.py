@@ -5,24 +5,15 @@ from __future__ import annotations
 
 import copy
 import dataclasses
-import itertools
 import math
 from pathlib import Path
 
-import numpy as np
 import pytest
 import yaml
 
-from mps.pipeline.config import (
-    ConfigError,
-    InputError,
-    RunConfig,
-    config_hash,
-    dump_config,
-    load_config,
-    parse_config,
-    reachable_charges,
-)
+from mps.pipeline.config import config_hash, load_config, parse_config
+from mps.pipeline.errors import ConfigError, InputError
+from mps.pipeline.schema import RunConfig, dump_config
 
 REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "configs" / "demo-staggered-chain.yaml"
@@ -61,7 +52,7 @@ BAD = {
     "unknown model key": (edit("model.size", 4), "model.size", "allowed: charge, couplings, family, sites"),
     "unknown solver key": (edit("solver.sweeps", 4), "solver.sweeps", "allowed:"),
     "unknown stage key": (
-        edit("solver.stages.0.bond_dim", 4), "solver.stages[0].bond_dim", "allowed: bond, noise, sweeps"
+        edit("solver.stages.0.bond_dim", 4), "solver.stages[0].bond_dim", "allowed: admix, bond, sweeps"
     ),
     "unknown analysis key": (edit("analysis.entropies", 1), "analysis.entropies", "allowed:"),
     "unknown output key": (edit("output.format", "csv"), "output.format", "allowed: dir, plots"),
@@ -99,12 +90,12 @@ BAD = {
     "stage bond bool": (edit("solver.stages.0.bond", True), "solver.stages[0].bond", "integer >= 1"),
     "stage bond missing": (edit("solver.stages.0.bond", DELETE), "solver.stages[0].bond", "required"),
     "stage sweeps float": (edit("solver.stages.0.sweeps", 2.5), "solver.stages[0].sweeps", "integer >= 1"),
-    "stage noise negative": (edit("solver.stages.0.noise", -1e-5), "solver.stages[0].noise", ">= 0"),
+    "stage admix negative": (edit("solver.stages.0.admix", -1e-5), "solver.stages[0].admix", ">= 0"),
     "discard negative": (edit("solver.discard", -1.0), "solver.discard", ">= 0"),
     "energy_tol zero": (edit("solver.energy_tol", 0), "solver.energy_tol", "> 0"),
     "seed negative": (edit("solver.seed", -3), "solver.seed", "integer >= 0"),
     "seed bool": (edit("solver.seed", False), "solver.seed", "got false"),
-    "krylov_dim one": (edit("solver.krylov_dim", 1), "solver.krylov_dim", "integer >= 2"),
+    "lanczos_vectors one": (edit("solver.lanczos_vectors", 1), "solver.lanczos_vectors", "integer >= 2"),
     "init unknown": (edit("solver.init", "zeros"), "solver.init", "random, product"),
     "renyi zero": (edit("analysis.renyi", [1, 0]), "analysis.renyi[1]", "> 0 or \"inf\", got 0"),
     "renyi negative": (edit("analysis.renyi", [-2]), "analysis.renyi[0]", "> 0"),
@@ -252,9 +243,9 @@ def test_defaults_are_resolved(tmp_path):
     assert cfg.model.couplings == {"J": 1.0, "Delta": 1.0, "h": 0.0, "h_stag": 0.0, "dimer": 0.0}
     assert cfg.model.charge == {"Sz": 0.5}  # odd chain: the default sector is S^z = 1/2
     assert cfg.model.integer_charge() == (1,)
-    assert [(s.bond, s.sweeps, s.noise) for s in cfg.solver.stages] == [(32, 2, 1e-5), (128, 6, 0.0)]
+    assert [(s.bond, s.sweeps, s.admix) for s in cfg.solver.stages] == [(32, 2, 1e-5), (128, 6, 0.0)]
     s = cfg.solver
-    assert (s.discard, s.energy_tol, s.seed, s.krylov_dim, s.init) == (1e-10, 1e-9, 1, 24, "random")
+    assert (s.discard, s.energy_tol, s.seed, s.lanczos_vectors, s.init) == (1e-10, 1e-9, 1, 24, "random")
     a = cfg.analysis
     assert a.renyi == (1.0, 2.0, 3.0, math.inf) and all(isinstance(n, float) for n in a.renyi)
     assert (a.cuts, a.flux_points, a.spectrum_levels, a.weight_floor, a.resolve) == ("all", 65, 20, 1e-12, "Sz")
@@ -267,12 +258,12 @@ def test_defaults_are_resolved(tmp_path):
 def test_noise_default_on_all_but_the_last_stage():
     stages = [
         {"bond": 8, "sweeps": 1},
-        {"bond": 16, "sweeps": 1, "noise": 1e-3},
+        {"bond": 16, "sweeps": 1, "admix": 1e-3},
         {"bond": 32, "sweeps": 1},
         {"bond": 64, "sweeps": 2},
     ]
     cfg = parse_config(edit("solver.stages", stages))
-    assert [s.noise for s in cfg.solver.stages] == [1e-5, 1e-3, 1e-5, 0.0]
+    assert [s.admix for s in cfg.solver.stages] == [1e-5, 1e-3, 1e-5, 0.0]
 
 
 def test_empty_sections_and_numeric_strings():
@@ -324,25 +315,6 @@ def test_config_hash():
     assert config_hash({**same, "charge": {"Sz": 1}}) != h
     with pytest.raises(ConfigError):
         config_hash({**same, "sites": 0})
-
-
-@pytest.mark.parametrize(
-    "local",
-    [
-        [[-1], [1]],
-        [[0], [1]],
-        [[0, 0], [1, 1], [1, -1], [2, 0]],  # spinful fermion site: (N, 2 S^z)
-        [[-2], [0], [2]],
-        [[0], [3]],
-    ],
-)
-@pytest.mark.parametrize("sites", [1, 2, 5])
-def test_reachable_charges_matches_enumeration(local, sites):
-    # Source: exact -- brute-force enumeration of all product states.
-    local = np.array(local)
-    brute = {tuple(np.sum(c, axis=0)) for c in itertools.product(local, repeat=sites)}
-    got = reachable_charges(local, sites)
-    assert {tuple(r) for r in got} == brute and len(got) == len(brute)
 
 
 @pytest.mark.parametrize("raw, ok", [

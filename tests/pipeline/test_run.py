@@ -17,11 +17,12 @@ import h5py
 import pytest
 import yaml
 
-import reference_ed as ed
 from mps.pipeline import runner
 from mps.pipeline.checkpoint import CheckpointError, load_checkpoint
-from mps.pipeline.config import InputError
-from mps.solver.sweep import GroundStateSearch
+from mps.pipeline.errors import InputError
+from mps.solver.sweep import SectorSweeper
+
+import reference_ed as ed
 
 CONFIG = {
     "name": "ladder-test",
@@ -80,7 +81,7 @@ def test_run_writes_the_run_directory_and_matches_exact_diagonalisation(tmp_path
 def test_interrupted_run_resumes_to_the_same_energy(tmp_path, monkeypatch):
     cfg = write_config(tmp_path)
     assert runner.run(str(cfg), str(tmp_path / "whole")) == 0
-    original = GroundStateSearch.run
+    original = SectorSweeper.run
 
     def interrupted(self, on_bond=None, should_stop=None):
         for k, rec in enumerate(original(self, on_bond, should_stop)):
@@ -88,11 +89,11 @@ def test_interrupted_run_resumes_to_the_same_energy(tmp_path, monkeypatch):
             if k == 2:
                 raise KeyboardInterrupt
 
-    monkeypatch.setattr(GroundStateSearch, "run", interrupted)
+    monkeypatch.setattr(SectorSweeper, "run", interrupted)
     assert runner.run(str(cfg), str(tmp_path / "cut")) == 130
     _, progress, _, _ = load_checkpoint(tmp_path / "cut" / "state.h5")
     assert progress.sweep == 3
-    monkeypatch.setattr(GroundStateSearch, "run", original)
+    monkeypatch.setattr(SectorSweeper, "run", original)
     assert runner.resume(str(tmp_path / "cut")) == 0
     a, b = summary(tmp_path / "whole"), summary(tmp_path / "cut")
     assert b["energy"] == pytest.approx(a["energy"], abs=1e-10)
@@ -128,9 +129,11 @@ def test_a_sweep_stopped_half_way_resumes_exactly(tmp_path):
     # A search stopped after any bond step, checkpointed, reloaded and continued reproduces the
     # uninterrupted search (same random numbers, same environments).
     import numpy as np
-    from chains import solve
+
     from mps.pipeline.checkpoint import save_checkpoint
     from mps.solver.sweep import Stage, SweepSettings, SweepStopped
+
+    from chains import solve
 
     settings = SweepSettings((Stage(8, 2, 1e-4), Stage(32, 4, 0.0)), discard=1e-14, energy_tol=1e-13)
     couplings = CONFIG["model"]["couplings"]
@@ -138,7 +141,7 @@ def test_a_sweep_stopped_half_way_resumes_exactly(tmp_path):
     mpo, _ = solve("xxz", 12, couplings, {"Sz": 0}, SweepSettings((Stage(2, 1),)), seed=11)
     from mps.chain.state import random_state
     rng = np.random.default_rng(11)
-    search = GroundStateSearch(mpo, random_state(mpo.phys, 12, (0,), 16, rng), settings, rng)
+    search = SectorSweeper(mpo, random_state(mpo.phys, 12, (0,), 16, rng), settings, rng)
     calls = iter(range(10**6))
     with pytest.raises(SweepStopped):
         for _ in search.run(should_stop=lambda: next(calls) == 30):
@@ -148,7 +151,7 @@ def test_a_sweep_stopped_half_way_resumes_exactly(tmp_path):
     state, progress, rng_state, _ = load_checkpoint(tmp_path / "s.h5")
     rng2 = np.random.default_rng()
     rng2.bit_generator.state = rng_state
-    again = GroundStateSearch(mpo, state, settings, rng2, progress)
+    again = SectorSweeper(mpo, state, settings, rng2, progress)
     for _ in again.run():
         pass
     assert again.progress.sweep == whole.progress.sweep
@@ -174,7 +177,7 @@ def test_resume_with_an_extended_solver_section_continues(tmp_path):
     assert cli("run", write_config(tmp_path, solver=short), "--out", out).returncode == 0
     coarse = summary(out)["energy"]
     cfg = yaml.safe_load((out / "config.yaml").read_text())
-    cfg["solver"]["stages"].append({"bond": 64, "sweeps": 6, "noise": 0.0})
+    cfg["solver"]["stages"].append({"bond": 64, "sweeps": 6, "admix": 0.0})
     (out / "config.yaml").write_text(yaml.safe_dump(cfg))
     res = cli("resume", out)
     assert res.returncode == 0, res.stderr
@@ -265,7 +268,7 @@ def test_fermion_chain_from_a_product_state_matches_exact_diagonalisation(tmp_pa
     couplings = {"t": 1.0, "V": 0.8, "mu": 0.1, "mu_stag": 0.2, "dimer": 0.1}
     cfg = {"name": "tv", "model": {"family": "fermions", "sites": 10, "couplings": couplings,
                                    "charge": {"N": 4}},
-           "solver": {"stages": [{"bond": 8, "sweeps": 2, "noise": 1e-4}, {"bond": 40, "sweeps": 6}],
+           "solver": {"stages": [{"bond": 8, "sweeps": 2, "admix": 1e-4}, {"bond": 40, "sweeps": 6}],
                       "discard": 1e-14, "energy_tol": 1e-12, "init": "product"},
            "analysis": {"renyi": [1, 2]}, "output": {"plots": False}}
     path = tmp_path / "tv.yaml"

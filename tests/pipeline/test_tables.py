@@ -13,12 +13,13 @@ import math
 import numpy as np
 import pytest
 
+from models import get_family
+from mps.analysis.entanglement import default_alphas
+from mps.pipeline.config import parse_config
+from mps.pipeline.tables import entanglement_tables, resolve_state
+
 import reference_ed as ed
 from chains import CASES, reference, solve, solved_case
-from models import get_family
-from mps.pipeline.config import parse_config
-from mps.analysis.entanglement import default_alphas
-from mps.pipeline.tables import entanglement_tables, resolve_state
 
 RENYI = (1.0, 2.0, math.inf)
 

@@ -14,10 +14,11 @@ import math
 import numpy as np
 import pytest
 
-import reference_ed as ed
-from chains import CASES, reference, solve, solved_case
 from models import get_family
 from mps.solver.sweep import Stage, SweepSettings, energy_and_variance
+
+import reference_ed as ed
+from chains import CASES, reference, solve, solved_case
 
 
 @pytest.mark.parametrize("name", sorted(CASES))

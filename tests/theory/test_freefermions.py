@@ -12,6 +12,7 @@ from itertools import product
 import numpy as np
 import pytest
 
+from mps.analysis.resolved import CutResolved
 from mps.theory.freefermions import (
     block_occupations,
     charge_correlations,
@@ -19,7 +20,7 @@ from mps.theory.freefermions import (
     resolve_all_cuts,
     resolve_block,
 )
-from mps.analysis.resolved import CutResolved
+
 from reference_ed import (
     block_charge_correlations,
     fermion_sector,
