@@ -1,0 +1,19 @@
+"""The ground-state search in one charge sector: environments and the two-site effective
+Hamiltonian, restarted Lanczos, and two-site sweeps as a generator of sweep records that never
+prints (the pipeline draws progress and writes checkpoints).
+"""
+
+from mps.solver.krylov import EigenResult, lowest_eigenpair
+from mps.solver.sweep import (
+                              Progress,
+                              SectorSweeper,
+                              Stage,
+                              SweepRecord,
+                              SweepSettings,
+                              SweepStopped,
+                              energy_and_variance,
+                              solve_sector,
+)
+
+__all__ = ["EigenResult", "Progress", "SectorSweeper", "Stage", "SweepRecord", "SweepSettings",
+           "SweepStopped", "energy_and_variance", "lowest_eigenpair", "solve_sector"]

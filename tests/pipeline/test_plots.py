@@ -140,7 +140,7 @@ def test_plotted_gaussian_is_normalised_on_the_charge_lattice():
     # lattice, as in comparison.json's distances (exact: normalisation).
     import numpy as np
 
-    from mps.pipeline.plots import _lattice_gaussian
+    from mps.pipeline.plots.sectors import _lattice_gaussian
 
     for var, spacing, mean in ((0.059, 1.0, 0.0), (0.3, 1.0, 0.2), (2.5, 1.0, -0.5), (0.02, 1.0, 0.5)):
         lattice = np.arange(-30, 31) * spacing + (mean % spacing)

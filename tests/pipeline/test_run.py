@@ -25,7 +25,7 @@ from mps.solver.sweep import SectorSweeper
 import reference_ed as ed
 
 CONFIG = {
-    "name": "ladder-test",
+    "name": "dimerised-staggered-12",
     "model": {"family": "xxz", "sites": 12, "couplings": {"J": 1.0, "Delta": 0.8, "h_stag": 0.2,
                                                           "dimer": 0.1},
               "charge": {"Sz": 0}},
