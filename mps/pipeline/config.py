@@ -282,7 +282,4 @@ def _output(sec: Mapping[str, Any], name: str) -> OutputConfig:
     out = sec.get("dir", f"runs/{name}")
     if not isinstance(out, str) or not out.strip():
         raise ConfigError("output.dir", f"must be a non-empty string, got {show(out)}")
-    plots = sec.get("plots", True)
-    if not isinstance(plots, bool):
-        raise ConfigError("output.plots", f"must be true or false, got {show(plots)}")
-    return OutputConfig(dir=out, plots=plots)
+    return OutputConfig(dir=out, plots=boolean(sec.get("plots", True), "output.plots"))
