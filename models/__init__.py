@@ -2,9 +2,12 @@
 
 A family is data plus four small functions (local basis, list of terms, optional quadratic
 single-particle matrix, default charge sector). Adding a family is one module that defines
-``NAME``, ``DESCRIPTION``, ``CHARGE_NAMES``, ``COUPLINGS`` and the functions ``space``,
-``terms``, ``single_particle`` and ``default_charge``, plus one ``register`` line at the bottom
-of this file.
+``NAME``, ``DESCRIPTION``, ``CHARGE_NAMES``, ``COUPLINGS`` and the functions ``space(opts)``,
+``terms(sites, couplings, opts)``, ``single_particle(sites, couplings, opts)`` and
+``default_charge(sites, opts)``, plus one ``register`` line at the bottom of this file. Optional
+module attributes: ``OPTIONS`` (further ``model:`` keys with their defaults, e.g. ``nmax``),
+``VARIANCE_SLOPES`` (charge name -> coefficient of K log l_eff in the block charge variance, for
+the Luttinger-parameter fits) and ``FREE_COUPLINGS`` (coupling names chosen by the user).
 
 Examples
 --------
@@ -18,16 +21,23 @@ Examples
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from types import ModuleType
+from typing import Any
 
 import numpy as np
 
-from models import fermions, xxz
+from models import bosons, fermions, hubbard, spin1, written, xxz
 from mps.chain.lattice import LocalSpace, Term
 
 SingleParticle = tuple[np.ndarray, float, float]
+Options = Mapping[str, Any]
+
+# sigma^2 = (K/(2 pi^2)) log l_eff for one charge of a one-component Luttinger liquid, one
+# entangling point (DESIGN.md section 5).
+ONE_COMPONENT_SLOPE = 1.0 / (2.0 * math.pi**2)
 
 
 class UnknownNameError(KeyError):
@@ -45,24 +55,31 @@ class ModelFamily:
     ----------
     name : registry key, the YAML ``model.family`` value.
     description : one line for help texts.
-    charge_names : names of the conserved charges, in the order of ``LocalSpace.charges`` columns.
-    couplings : coupling name -> default value; the only names a config may set.
-    make_space : () -> LocalSpace.
-    make_terms : (sites, couplings) -> list[Term], couplings complete (defaults filled).
-    make_single_particle : (sites, couplings) -> (h, unit, offset_per_site) or None.
-    make_default_charge : sites -> {charge name: physical value}.
+    charge_names : names of the conserved charges, in the order of ``LocalSpace.charges`` columns
+        (for chains written in YAML they follow the chosen basis: see :meth:`space`).
+    couplings : coupling name -> default value; the only names a config may set (unless
+        ``free_couplings``: then the config names its own couplings and there are no defaults).
+    options : further ``model:`` keys of the family -> default (e.g. ``nmax``).
+    variance_slopes : charge name -> s with sigma^2 = K s log l_eff (Luttinger-parameter fits).
+    make_space : (opts) -> LocalSpace.
+    make_terms : (sites, couplings, opts) -> list[Term], couplings complete (defaults filled).
+    make_single_particle : (sites, couplings, opts) -> (h, unit, offset_per_site) or None.
+    make_default_charge : (sites, opts) -> {charge name: physical value}.
     """
 
     name: str
     description: str
     charge_names: tuple[str, ...]
     couplings: dict[str, float] = field(hash=False)
-    make_space: Callable[[], LocalSpace] = field(repr=False)
-    make_terms: Callable[[int, Mapping[str, float]], list[Term]] = field(repr=False)
-    make_single_particle: Callable[[int, Mapping[str, float]], SingleParticle | None] = field(
+    make_space: Callable[[Options], LocalSpace] = field(repr=False)
+    make_terms: Callable[[int, Mapping[str, float], Options], list[Term]] = field(repr=False)
+    make_single_particle: Callable[[int, Mapping[str, float], Options], SingleParticle | None] = field(
         repr=False
     )
-    make_default_charge: Callable[[int], dict[str, float]] = field(repr=False)
+    make_default_charge: Callable[[int, Options], dict[str, float]] = field(repr=False)
+    options: dict[str, Any] = field(default_factory=dict, hash=False)
+    variance_slopes: dict[str, float] = field(default_factory=dict, hash=False)
+    free_couplings: bool = False
 
     @classmethod
     def from_module(cls, module: ModuleType) -> ModelFamily:
@@ -76,6 +93,9 @@ class ModelFamily:
             make_terms=module.terms,
             make_single_particle=module.single_particle,
             make_default_charge=module.default_charge,
+            options=dict(getattr(module, "OPTIONS", {})),
+            variance_slopes=dict(getattr(module, "VARIANCE_SLOPES", {})),
+            free_couplings=bool(getattr(module, "FREE_COUPLINGS", False)),
         )
 
     def resolve_couplings(self, couplings: Mapping[str, float] | None = None) -> dict[str, float]:
@@ -84,6 +104,8 @@ class ModelFamily:
         Unknown names raise :class:`UnknownNameError` (a ``KeyError``) listing the valid ones.
         """
         given = dict(couplings or {})
+        if self.free_couplings:
+            return {name: float(v) for name, v in given.items()}
         unknown = sorted(set(given) - set(self.couplings))
         if unknown:
             raise UnknownNameError(
@@ -92,27 +114,44 @@ class ModelFamily:
             )
         return {name: float(given.get(name, default)) for name, default in self.couplings.items()}
 
-    def space(self) -> LocalSpace:
-        """Local basis, charges and operator matrices of one site."""
-        return self.make_space()
+    def resolve_options(self, options: Options | None = None) -> dict[str, Any]:
+        """Defaults of the family's further ``model:`` keys overlaid with ``options``."""
+        given = dict(options or {})
+        unknown = sorted(set(given) - set(self.options))
+        if unknown:
+            raise UnknownNameError(
+                f"unknown model key(s) {', '.join(unknown)} for family '{self.name}'; "
+                f"valid: {', '.join(sorted(self.options)) or 'none'}"
+            )
+        return {**self.options, **given}
 
-    def terms(self, sites: int, couplings: Mapping[str, float] | None = None) -> list[Term]:
+    def space(self, options: Options | None = None) -> LocalSpace:
+        """Local basis, charges and operator matrices of one site."""
+        return self.make_space(self.resolve_options(options))
+
+    def terms(self, sites: int, couplings: Mapping[str, float] | None = None,
+              options: Options | None = None) -> list[Term]:
         """Hamiltonian of an open chain of ``sites`` sites as a list of terms (zero terms omitted)."""
-        return self.make_terms(sites, self.resolve_couplings(couplings))
+        return self.make_terms(sites, self.resolve_couplings(couplings), self.resolve_options(options))
 
     def single_particle(
-        self, sites: int, couplings: Mapping[str, float] | None = None
+        self, sites: int, couplings: Mapping[str, float] | None = None, options: Options | None = None
     ) -> SingleParticle | None:
         """``(h, unit, offset_per_site)`` when the chain is quadratic in fermions, else ``None``.
 
         H = sum_ij h_ij c+_i c_j + const; the block charge in physical units is
         ``unit * N_A + offset_per_site * l`` for a block of ``l`` sites holding ``N_A`` fermions.
         """
-        return self.make_single_particle(sites, self.resolve_couplings(couplings))
+        return self.make_single_particle(sites, self.resolve_couplings(couplings),
+                                         self.resolve_options(options))
 
-    def default_charge(self, sites: int) -> dict[str, float]:
+    def default_charge(self, sites: int, options: Options | None = None) -> dict[str, float]:
         """Charge sector (physical values) used when the config does not name one."""
-        return self.make_default_charge(sites)
+        return self.make_default_charge(sites, self.resolve_options(options))
+
+    def variance_slope(self, charge: str) -> float:
+        """s in sigma^2 = K s log l_eff for ``charge`` (one-component value unless the family says)."""
+        return self.variance_slopes.get(charge, ONE_COMPONENT_SLOPE)
 
 
 _REGISTRY: dict[str, ModelFamily] = {}
@@ -144,5 +183,5 @@ def family_names() -> list[str]:
     return sorted(_REGISTRY)
 
 
-register(ModelFamily.from_module(xxz))
-register(ModelFamily.from_module(fermions))
+for _module in (xxz, fermions, hubbard, bosons, spin1, written):
+    register(ModelFamily.from_module(_module))

@@ -3,8 +3,9 @@
 H = -sum_{j=0}^{L-2} t_j (c+_j c_{j+1} + c+_{j+1} c_j) + V sum_{j=0}^{L-2} n_j n_{j+1}
     - sum_{j=0}^{L-1} (mu + mu_stag (-1)^j) n_j,             t_j = t (1 + dimer (-1)^j),
 
-open ends. The conserved charge is the particle number N (basis (empty, occupied), unit 1).
-"C" and "Cdag" are lattice fermion operators; the operator builder adds Jordan-Wigner strings.
+open ends, on the ``spinless-fermion`` site of :mod:`models.bases`. The conserved charge is the
+particle number N (basis (empty, occupied), unit 1). ``c^+`` and ``c`` are lattice fermion
+operators; the operator builder adds Jordan-Wigner strings.
 """
 
 from __future__ import annotations
@@ -13,7 +14,9 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from models.bases import spinless_fermion
 from models.patterns import dimerised, staggered
+from models.terms import place
 from mps.chain.lattice import LocalSpace, Term
 
 NAME = "fermions"
@@ -22,17 +25,9 @@ CHARGE_NAMES = ("N",)
 COUPLINGS = {"t": 1.0, "V": 0.0, "mu": 0.0, "mu_stag": 0.0, "dimer": 0.0}
 
 
-def space() -> LocalSpace:
+def space(opts=None) -> LocalSpace:
     """Spinless fermion site, basis (empty, occupied), charge N in (0, 1), parity (1, -1)."""
-    c = np.array([[0.0, 1.0], [0.0, 0.0]])  # c |occupied> = |empty>, ops[out, in]
-    return LocalSpace(
-        charges=np.array([[0], [1]]),
-        charge_names=CHARGE_NAMES,
-        charge_units=(1.0,),
-        ops={"C": c, "Cdag": c.T.copy(), "N": np.diag([0.0, 1.0]), "Id": np.eye(2)},
-        fermionic=frozenset({"C", "Cdag"}),
-        parity=np.array([1.0, -1.0]),
-    )
+    return spinless_fermion()
 
 
 def hoppings(sites: int, c: Mapping[str, float]) -> np.ndarray:
@@ -45,26 +40,19 @@ def potentials(sites: int, c: Mapping[str, float]) -> np.ndarray:
     return staggered(c["mu"], c["mu_stag"], sites)
 
 
-def terms(sites: int, c: Mapping[str, float]) -> list[Term]:
+def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
     """Terms of H (see module docstring); terms with a coefficient of exactly zero are left out.
 
     Count: per bond with t_j != 0, two hopping terms; per bond one n n term when V != 0; per site
     with a non-zero potential, one n term.
     """
-    out: list[Term] = []
-    for j, tj in enumerate(hoppings(sites, c)):
-        if tj != 0.0:
-            out.append(Term(-float(tj), ((j, "Cdag"), (j + 1, "C"))))
-            out.append(Term(-float(tj), ((j + 1, "Cdag"), (j, "C"))))
-        if c["V"] != 0.0:
-            out.append(Term(c["V"], ((j, "N"), (j + 1, "N"))))
-    for j, mu in enumerate(potentials(sites, c)):
-        if mu != 0.0:
-            out.append(Term(-float(mu), ((j, "N"),)))
-    return out
+    s = space()
+    return (place("c^+(j) c(j+1)", -hoppings(sites, c), s, sites, plus_hc=True)
+            + place("n(j) n(j+1)", c["V"], s, sites)
+            + place("n(j)", -potentials(sites, c), s, sites))
 
 
-def single_particle(sites: int, c: Mapping[str, float]) -> tuple[np.ndarray, float, float] | None:
+def single_particle(sites: int, c: Mapping[str, float], opts=None) -> tuple[np.ndarray, float, float] | None:
     """``(h, 1, 0)`` with H = sum_ij h_ij c+_i c_j when V = 0, else ``None``.
 
     h_{j,j+1} = h_{j+1,j} = -t_j, h_jj = -(mu + mu_stag (-1)^j); the block charge is N_A.
@@ -78,6 +66,6 @@ def single_particle(sites: int, c: Mapping[str, float]) -> tuple[np.ndarray, flo
     return h, 1.0, 0.0
 
 
-def default_charge(sites: int) -> dict[str, float]:
+def default_charge(sites: int, opts=None) -> dict[str, float]:
     """Half filling rounded down, N = L // 2."""
     return {"N": float(sites // 2)}

@@ -3,8 +3,9 @@
 H = sum_{j=0}^{L-2} J_j (Sx_j Sx_{j+1} + Sy_j Sy_{j+1} + Delta Sz_j Sz_{j+1})
     + sum_{j=0}^{L-1} (h + h_stag (-1)^j) Sz_j,            J_j = J (1 + dimer (-1)^j),
 
-with Sx Sx + Sy Sy = (S+ S- + S- S+) / 2. The conserved charge is S^z, stored as the integer
-2 S^z (basis (down, up) -> charges (-1, +1)), unit 0.5.
+with Sx Sx + Sy Sy = (S+ S- + S- S+) / 2, on the ``spin-half`` site of :mod:`models.bases`.
+The conserved charge is S^z, stored as the integer 2 S^z (basis (down, up) -> charges (-1, +1)),
+unit 0.5.
 """
 
 from __future__ import annotations
@@ -13,7 +14,9 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from models.bases import spin_half
 from models.patterns import dimerised, staggered
+from models.terms import place
 from mps.chain.lattice import LocalSpace, Term
 
 NAME = "xxz"
@@ -22,15 +25,9 @@ CHARGE_NAMES = ("Sz",)
 COUPLINGS = {"J": 1.0, "Delta": 1.0, "h": 0.0, "h_stag": 0.0, "dimer": 0.0}
 
 
-def space() -> LocalSpace:
+def space(opts=None) -> LocalSpace:
     """Spin-1/2 site, basis (down, up), charge 2 S^z in (-1, +1), unit 0.5."""
-    sp = np.array([[0.0, 0.0], [1.0, 0.0]])  # S+ |down> = |up>, ops[out, in]
-    return LocalSpace(
-        charges=np.array([[-1], [1]]),
-        charge_names=CHARGE_NAMES,
-        charge_units=(0.5,),
-        ops={"Sp": sp, "Sm": sp.T.copy(), "Sz": np.diag([-0.5, 0.5]), "Id": np.eye(2)},
-    )
+    return spin_half()
 
 
 def bond_couplings(sites: int, c: Mapping[str, float]) -> np.ndarray:
@@ -43,27 +40,19 @@ def site_fields(sites: int, c: Mapping[str, float]) -> np.ndarray:
     return staggered(c["h"], c["h_stag"], sites)
 
 
-def terms(sites: int, c: Mapping[str, float]) -> list[Term]:
+def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
     """Terms of H (see module docstring); terms with a coefficient of exactly zero are left out.
 
     Count: per bond with J_j != 0, two flip terms plus one Sz Sz term when Delta != 0; per site
     with a non-zero field, one Sz term.
     """
-    out: list[Term] = []
-    for j, jj in enumerate(bond_couplings(sites, c)):
-        if jj == 0.0:
-            continue
-        out.append(Term(0.5 * jj, ((j, "Sp"), (j + 1, "Sm"))))
-        out.append(Term(0.5 * jj, ((j, "Sm"), (j + 1, "Sp"))))
-        if c["Delta"] != 0.0:
-            out.append(Term(jj * c["Delta"], ((j, "Sz"), (j + 1, "Sz"))))
-    for j, field in enumerate(site_fields(sites, c)):
-        if field != 0.0:
-            out.append(Term(float(field), ((j, "Sz"),)))
-    return out
+    s, jj = space(), bond_couplings(sites, c)
+    return (place("S^+(j) S^-(j+1)", 0.5 * jj, s, sites, plus_hc=True)
+            + place("S^z(j) S^z(j+1)", jj * c["Delta"], s, sites)
+            + place("S^z(j)", site_fields(sites, c), s, sites))
 
 
-def single_particle(sites: int, c: Mapping[str, float]) -> tuple[np.ndarray, float, float] | None:
+def single_particle(sites: int, c: Mapping[str, float], opts=None) -> tuple[np.ndarray, float, float] | None:
     """Free-fermion form of the chain at Delta = 0 (Jordan-Wigner), else ``None``.
 
     With S+_j = c+_j prod_{k<j} (1 - 2 n_k) and S^z_j = n_j - 1/2 (Lieb, Schultz and Mattis,
@@ -85,6 +74,6 @@ def single_particle(sites: int, c: Mapping[str, float]) -> tuple[np.ndarray, flo
     return h, 1.0, -0.5
 
 
-def default_charge(sites: int) -> dict[str, float]:
+def default_charge(sites: int, opts=None) -> dict[str, float]:
     """S^z = 0 for even L, 1/2 for odd L."""
     return {"Sz": 0.0 if sites % 2 == 0 else 0.5}

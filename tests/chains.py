@@ -24,11 +24,11 @@ CASES = {
 }
 
 
-def solve(family: str, sites: int, couplings: dict, charge: dict, settings=SETTINGS, seed=3):
+def solve(family: str, sites: int, couplings: dict, charge: dict, settings=SETTINGS, seed=3, options=None):
     """(mpo, finished search) for the chain, started from a random state in the sector."""
     fam = get_family(family)
-    space = fam.space()
-    mpo = build_mpo(space, sites, fam.terms(sites, couplings))
+    space = fam.space(options)
+    mpo = build_mpo(space, sites, fam.terms(sites, couplings, options))
     target = tuple(int(round(charge[n] / u)) for n, u in zip(space.charge_names, space.charge_units))
     return mpo, solve_sector(mpo, target, settings, np.random.default_rng(seed))
 

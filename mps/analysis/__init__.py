@@ -6,6 +6,7 @@ and the correlation length from transfer matrices.
 
 from mps.analysis.correlations import connected_charge_correlations, correlation_length, local_expectations
 from mps.analysis.entanglement import (
+                                       charge_moments,
                                        default_alphas,
                                        entanglement_spectrum,
                                        renyi_entropy,
@@ -15,6 +16,6 @@ from mps.analysis.entanglement import (
 )
 from mps.analysis.resolved import CutResolved, JointResolved, SectorWeights
 
-__all__ = ["CutResolved", "JointResolved", "SectorWeights", "connected_charge_correlations",
+__all__ = ["CutResolved", "JointResolved", "SectorWeights", "charge_moments", "connected_charge_correlations",
            "correlation_length", "default_alphas", "entanglement_spectrum", "local_expectations",
            "renyi_entropy", "resolve_chain", "resolve_cut", "resolve_cut_joint"]

@@ -184,6 +184,26 @@ def resolve_chain(
     ]
 
 
+def charge_moments(
+    schmidt: Spectrum, units: tuple[float, ...], offsets: tuple[float, ...] | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Mean vector (k,) and covariance matrix (k, k) of the block charges under p(q).
+
+    With k charges (e.g. N and S^z of a spinful chain) the diagonal holds each charge's block
+    variance, whose growth with log l_eff gives that charge's Luttinger parameter; the
+    off-diagonal entries vanish when the state is symmetric under the exchange of species.
+    """
+    spec, u, o = _clean(schmidt, units, offsets)
+    keys = list(spec)
+    logw = [_log_weights(spec[q]) for q in keys]
+    logp = np.array([logsumexp(w) if w.size else -np.inf for w in logw])
+    p = np.exp(logp - logsumexp(logp))
+    q = u * np.array(keys, dtype=float).reshape(-1, u.size) + o
+    mean = p @ q
+    d = q - mean
+    return mean, (p[:, None] * d).T @ d
+
+
 def entanglement_spectrum(
     schmidt: Spectrum,
     units: tuple[float, ...],

@@ -8,7 +8,7 @@ Jordan-Wigner strings of fermionic operators are inserted there, once, for every
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -27,6 +27,8 @@ class LocalSpace:
     ops : operator name -> (dim, dim) matrix, ``ops[name][out, in]``.
     fermionic : names of operators that are odd under fermion parity (get Jordan-Wigner strings).
     parity : diagonal of the local fermion parity (-1)^n; ``None`` for bosonic sites.
+    adjoints : operator name -> name of its Hermitian conjugate (``ops[adjoints[a]] = ops[a]^dagger``);
+        used to write "plus Hermitian conjugate" of a product of named operators.
     """
 
     charges: np.ndarray
@@ -35,6 +37,7 @@ class LocalSpace:
     ops: dict[str, np.ndarray] = field(hash=False, compare=False)
     fermionic: frozenset[str] = frozenset()
     parity: np.ndarray | None = None
+    adjoints: dict[str, str] = field(default_factory=dict, hash=False, compare=False)
 
     @property
     def dim(self) -> int:
@@ -45,14 +48,30 @@ class LocalSpace:
         """Number of conserved charges k."""
         return int(self.charges.shape[1])
 
+    def keep_charges(self, names: tuple[str, ...]) -> LocalSpace:
+        """The same site with only the charges ``names`` conserved (e.g. Q = N_a - N_b without N).
+
+        Operators that change a dropped charge become allowed; those that change a kept one are
+        still refused by the operator builder.
+        """
+        unknown = [n for n in names if n not in self.charge_names]
+        if unknown or not names or len(set(names)) != len(names):
+            raise ValueError(f"charges to keep must be distinct names among {', '.join(self.charge_names)}, "
+                             f"got {', '.join(names) or 'none'}")
+        cols = [self.charge_names.index(n) for n in names]
+        return replace(self, charges=self.charges[:, cols], charge_names=tuple(names),
+                       charge_units=tuple(self.charge_units[c] for c in cols))
+
 
 @dataclass(frozen=True)
 class Term:
     """``coef * op_1 op_2 ... op_m`` with ``ops = ((site_1, name_1), ...)`` in product order.
 
     Sites may repeat and need not be sorted; fermionic operators are understood as
-    lattice fermions c_j (Jordan-Wigner strings are added by the operator builder).
+    lattice fermions c_j (Jordan-Wigner strings are added by the operator builder). ``label``
+    names where the term came from (e.g. an entry of a written chain) in the builder's refusals.
     """
 
     coef: complex
     ops: tuple[tuple[int, str], ...]
+    label: str = field(default="", compare=False)

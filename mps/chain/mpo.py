@@ -40,6 +40,7 @@ class LocalString:
     first: int
     mats: tuple[np.ndarray, ...]
     charges: tuple[tuple[int, ...], ...]   # charge change of every matrix
+    label: str = ""                        # Term.label of the term it came from
 
     @property
     def last(self) -> int:
@@ -77,7 +78,8 @@ def operator_charge(mat: np.ndarray, charges: np.ndarray, atol: float = 1e-14) -
 
 
 def _describe(term: Term) -> str:
-    return f"{term.coef:g} * " + " ".join(f"{name}@{site}" for site, name in term.ops)
+    text = f"{term.coef:g} * " + " ".join(f"{name}@{site}" for site, name in term.ops)
+    return f"{term.label}, {text}" if term.label else text
 
 
 def local_strings(space: LocalSpace, sites: int, terms: list[Term]) -> list[LocalString]:
@@ -130,7 +132,7 @@ def local_strings(space: LocalSpace, sites: int, terms: list[Term]) -> list[Loca
             raise OperatorError(f"term {_describe(term)} changes the charge ({names}) by "
                                 f"{tuple(u * t for u, t in zip(space.charge_units, total))}: "
                                 "it does not conserve the charge")
-        out.append(LocalString(complex(term.coef), lo, tuple(local), tuple(charges)))
+        out.append(LocalString(complex(term.coef), lo, tuple(local), tuple(charges), term.label))
     return out
 
 
@@ -185,7 +187,7 @@ def automaton(strings: list[LocalString], sites: int, d: int, k: int) -> tuple[l
 def adjoint_strings(strings: list[LocalString]) -> list[LocalString]:
     """The Hermitian conjugate of every string: conjugate coefficient, conjugate-transposed matrices."""
     return [LocalString(np.conj(st.coef), st.first, tuple(m.conj().T for m in st.mats),
-                        tuple(tuple(-c for c in q) for q in st.charges)) for st in strings]
+                        tuple(tuple(-c for c in q) for q in st.charges), st.label) for st in strings]
 
 
 def build_mpo(space: LocalSpace, sites: int, terms: list[Term], check_hermitian: bool = True) -> Mpo:
@@ -224,18 +226,38 @@ def _frobenius2(dense: list[np.ndarray]) -> float:
     return float(np.real(v[0, 0]))
 
 
-def check_hermitian_sum(strings: list[LocalString], dense: list[np.ndarray], sites: int, d: int, k: int,
-                        rtol: float = 1e-10) -> None:
-    """Refuse a sum of terms whose operator H differs from H^dagger: ||H - H^dagger||_F > rtol ||H||_F.
+def hermitian_defect(strings: list[LocalString], sites: int, d: int, k: int,
+                     dense: list[np.ndarray] | None = None) -> float:
+    """||H - H^dagger||_F / ||H||_F of the sum of ``strings``.
 
     H - H^dagger is itself built by the automaton from the strings and their negated adjoints, so
     a term and the adjoint of its partner meet on the same prefix and cancel exactly there; the
     Frobenius norms are then contracted without catastrophic cancellation.
     """
+    if dense is None:
+        _, dense = automaton(strings, sites, d, k)
     negated = [LocalString(-st.coef, st.first, st.mats, st.charges) for st in adjoint_strings(strings)]
     _, diff = automaton(strings + negated, sites, d, k)
     norm = _frobenius2(dense)
-    dnorm = _frobenius2(diff)
-    if dnorm > (rtol**2) * max(norm, 1e-300):
-        raise OperatorError(f"the Hamiltonian is not Hermitian: ||H - H^dagger|| / ||H|| = "
-                            f"{np.sqrt(max(dnorm, 0) / max(norm, 1e-300)):.3g}")
+    return float(np.sqrt(max(_frobenius2(diff), 0.0) / max(norm, 1e-300)))
+
+
+def check_hermitian_sum(strings: list[LocalString], dense: list[np.ndarray], sites: int, d: int, k: int,
+                        rtol: float = 1e-10) -> None:
+    """Refuse a sum of terms whose operator H differs from H^dagger: ||H - H^dagger||_F > rtol ||H||_F.
+
+    When it fails and the terms carry labels, the strings of each label are checked alone and the
+    first label whose own sum is not Hermitian is named (a term whose conjugate was forgotten).
+    """
+    defect = hermitian_defect(strings, sites, d, k, dense)
+    if defect <= rtol:
+        return
+    groups: dict[str, list[LocalString]] = {}
+    for st in strings:
+        groups.setdefault(st.label, []).append(st)
+    for label, group in groups.items():
+        if label and hermitian_defect(group, sites, d, k) > rtol:
+            raise OperatorError(f"{label}: is not Hermitian and neither is the whole sum "
+                                f"(||H - H^dagger|| / ||H|| = {defect:.3g}); add its conjugate "
+                                "(plus_hc: true, or a term with the conjugate product)")
+    raise OperatorError(f"the Hamiltonian is not Hermitian: ||H - H^dagger|| / ||H|| = {defect:.3g}")

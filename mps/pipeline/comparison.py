@@ -27,6 +27,10 @@ Keys of comparison.json (forms and sources in :mod:`mps.theory.fieldtheory`):
   log l in sigma_n^2 is K/(2 pi^2 n); the constant depends on n, so at reachable sizes sigma_sq
   lies well below variance/n for n > 1 (exact free fermions, 64 sites, mid-chain, n = 2: 0.077
   against 0.146);
+- ``luttinger_by_charge``: null for one charge; with several (hubbard: N and Sz), per charge name
+  ``value`` (K of that charge, null when the charge is gapped), ``slope`` (s in sigma^2 = K s log
+  l_eff), ``fit``, ``regime`` (critical, gapped or unchecked), ``correlation_length`` and a
+  ``reason`` when K is withheld (see :func:`luttinger_by_charge`);
 - ``correlation_length``: the result of :func:`mps.analysis.correlations.correlation_length` on the
   connected charge-charge correlations (xi, null when the decay is not exponential, as on a
   critical chain; amplitude, residual, window, ...) plus ``window_start_over_xi`` (the massive
@@ -51,6 +55,7 @@ import numpy as np
 
 from mps import __version__
 from mps.analysis import correlations as _correlations
+from mps.analysis.entanglement import charge_moments
 from mps.analysis.resolved import CutResolved
 from mps.chain.state import ChainState
 from mps.pipeline.errors import InputError
@@ -127,7 +132,7 @@ def build_comparison(cfg: RunConfig, state: ChainState,
     consecutive cuts); the Renyi indices are those of ``analysis.renyi``, with n = 1 added.
     """
     L = cfg.model.sites
-    space = cfg.model.family_record().space()
+    space = cfg.model.space()
     renyi = tuple(cfg.analysis.renyi) if 1.0 in cfg.analysis.renyi else (1.0,) + tuple(cfg.analysis.renyi)
     cuts = [c for c in range(1, L) if state.spectra[c] is not None]
     if not cuts:
@@ -142,6 +147,7 @@ def build_comparison(cfg: RunConfig, state: ChainState,
         "renyi": [renyi_label(n) for n in renyi], "version": __version__, "window": list(window),
         "central_charge": _central_charges(records, L, window),
         "luttinger": _luttinger(cfg, records, window),
+        "luttinger_by_charge": None,
         "equipartition": _equipartition(records, mid_rec, settings.threshold),
         "charged_moments": _moments(mid_rec, settings.alpha_max),
         "correlation_length": None,
@@ -152,6 +158,12 @@ def build_comparison(cfg: RunConfig, state: ChainState,
     corr = _solver_correlations(state, site_charge) if settings.correlations else None
     if corr is not None:
         report["correlation_length"] = _correlation_length(corr, window)
+    if len(space.charge_names) > 1:
+        by_charge = luttinger_by_charge(cfg, state, cuts, window, settings.correlations)
+        report["luttinger_by_charge"] = by_charge
+        resolved = by_charge[space.charge_names[_component(cfg)]]
+        if resolved["regime"] == "gapped":   # the headline K of the resolved charge follows its regime
+            report["luttinger"].update(value=None, reason=resolved["reason"])
     tables: dict[str, Table] = {}
     exact = _exact(cfg, records, corr, settings)
     if exact is not None:
@@ -171,7 +183,7 @@ def _plain(x):
 
 
 def _component(cfg: RunConfig) -> int:
-    names = cfg.model.family_record().charge_names
+    names = cfg.model.space().charge_names
     return 0 if cfg.analysis.resolve == "joint" else names.index(cfg.analysis.resolve)
 
 
@@ -201,10 +213,42 @@ def _wrap(fit: dict) -> dict:
 
 def _luttinger(cfg: RunConfig, records: list[CutResolved], window) -> dict:
     cuts, _, var = _series(records)
-    out = _wrap(_fit_or_error(fit_luttinger, cuts, var, cfg.model.sites, window))
+    slope = cfg.model.family_record().variance_slope(cfg.model.space().charge_names[_component(cfg)])
+    out = _wrap(_fit_or_error(fit_luttinger, cuts, var, cfg.model.sites, window, slope=slope))
     known = bethe_ansatz_luttinger(cfg)
     out["bethe_ansatz"] = known
     out["relative_difference"] = None if known is None or out["value"] is None else out["value"] / known - 1.0
+    return out
+
+
+def luttinger_by_charge(cfg: RunConfig, state: ChainState, cuts: list[int], window, correlations: bool) -> dict:
+    """One Luttinger parameter per conserved charge, from that charge's block variance.
+
+    sigma_c^2(l) = K_c s_c log l_eff + const (s_c from the family: for the Hubbard chain
+    s_N = 1/pi^2 and s_Sz = 1/(4 pi^2), so that free fermions give K_N = K_Sz = 1). A charge whose
+    density correlations decay exponentially with a correlation length below the smallest fitted
+    block (a gapped sector, e.g. the charge of the half-filled Hubbard chain at U > 0) saturates
+    instead of growing with log l: its K is withheld (``value`` null, ``regime`` "gapped") and
+    the correlation length is reported. Without measured correlations the regime is "unchecked".
+    """
+    space, fam, L = cfg.model.space(), cfg.model.family_record(), cfg.model.sites
+    var = np.array([np.diag(charge_moments(state.spectra[c].as_dict(), space.charge_units)[1]) for c in cuts])
+    phys = state.tensors[0].legs[1].state_charges() * np.asarray(space.charge_units)
+    out = {}
+    for i, name in enumerate(space.charge_names):
+        slope = fam.variance_slope(name)
+        fit = _fit_or_error(fit_luttinger, cuts, var[:, i], L, window, slope=slope)
+        entry = {"value": fit["value"], "slope": slope, "fit": fit, "regime": "unchecked", "correlation_length": None}
+        if correlations:
+            xi = _correlation_length(_solver_correlations(state, phys[:, i]), window).get("xi")
+            entry["correlation_length"] = xi
+            if xi is not None and math.isfinite(xi) and xi < window[0]:
+                entry.update(regime="gapped", value=None,
+                             reason=f"{name} correlations decay exponentially (xi = {xi:.3g} sites, below the "
+                                    f"smallest fitted block {window[0]}): the variance saturates")
+            else:
+                entry["regime"] = "critical"
+        out[name] = entry
     return out
 
 
@@ -291,12 +335,12 @@ def _exact(cfg: RunConfig, records: list[CutResolved], corr: np.ndarray | None,
            settings: ComparisonSettings) -> tuple[dict, dict[str, Table]] | None:
     """Exact lattice answer of a quadratic chain and the solver's largest deviations from it."""
     fam = cfg.model.family_record()
-    sp = fam.single_particle(cfg.model.sites, cfg.model.couplings)
+    sp = fam.single_particle(cfg.model.sites, cfg.model.couplings, cfg.model.options)
     if sp is None:
         return None
     h, unit, offset = sp
     component = _component(cfg)
-    total = cfg.model.charge[fam.charge_names[component]]
+    total = cfg.model.charge[cfg.model.space().charge_names[component]]
     n_particles = int(round((total - offset * cfg.model.sites) / unit))
     try:
         C = correlation_matrix(h, n_particles)

@@ -17,19 +17,16 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import yaml
 
-from models import ModelFamily, family_names, get_family
-from mps.blocks.charges import reachable_totals
 from mps.pipeline.errors import ConfigError
-from mps.pipeline.fields import boolean, fmt, integer, is_int, kind, real, section, show, yaml_problem
+from mps.pipeline.fields import boolean, integer, is_int, kind, real, section, show, yaml_problem
+from mps.pipeline.model_section import read_model
 from mps.pipeline.schema import (
     ANALYSIS_KEYS,
     DEFAULT_ADMIX,
     DEFAULT_STAGES,
     INIT_CHOICES,
-    MODEL_KEYS,
     OUTPUT_KEYS,
     SOLVER_KEYS,
     STAGE_KEYS,
@@ -78,7 +75,7 @@ def parse_config(data: Mapping[str, Any], default_name: str = "run") -> RunConfi
     """Validate an already-loaded config mapping; ``default_name`` is used when ``name`` is absent."""
     top = section(data, "", TOP_KEYS, required=True)
     name = _name(top.get("name", default_name))
-    model = _model(top.get("model"))
+    model = read_model(top.get("model"))
     solver = _solver(section(top.get("solver"), "solver", SOLVER_KEYS))
     analysis = _analysis(section(top.get("analysis"), "analysis", ANALYSIS_KEYS), model)
     output = _output(section(top.get("output"), "output", OUTPUT_KEYS), name)
@@ -91,7 +88,7 @@ def config_hash(model_section: ModelConfig | Mapping[str, Any]) -> str:
     A mapping is validated and resolved first, so ``{"J": 1}`` and ``{"J": 1.0}`` or an omitted
     default give the same hash; used to refuse resuming a run with a different chain.
     """
-    model = model_section if isinstance(model_section, ModelConfig) else _model(model_section)
+    model = model_section if isinstance(model_section, ModelConfig) else read_model(model_section)
     text = json.dumps(model.to_dict(), sort_keys=True, separators=(",", ":"), allow_nan=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -105,72 +102,6 @@ def _name(value: Any) -> str:
     if "/" in value or "\\" in value or value in (".", ".."):
         raise ConfigError("name", f"must not contain path separators, got {show(value)}")
     return value
-
-
-def _model(value: Any) -> ModelConfig:
-    sec = section(value, "model", MODEL_KEYS, required=True)
-    for key in ("family", "sites"):
-        if key not in sec:
-            raise ConfigError(f"model.{key}", "is required")
-    try:
-        fam = get_family(sec["family"])
-    except KeyError:
-        raise ConfigError(
-            "model.family",
-            f"unknown family {show(sec['family'])}; valid: {', '.join(family_names())}",
-        ) from None
-    sites = integer(sec["sites"], "model.sites", 2)
-    given = section(sec.get("couplings"), "model.couplings", tuple(fam.couplings), what="coupling")
-    couplings = {
-        key: (real(given[key], f"model.couplings.{key}") if key in given else float(default))
-        for key, default in fam.couplings.items()
-    }
-    charge = _charge(sec.get("charge"), fam, sites)
-    return ModelConfig(family=fam.name, sites=sites, couplings=couplings, charge=charge)
-
-
-def _charge(value: Any, fam: ModelFamily, sites: int) -> dict[str, float]:
-    """Target charge in physical units, checked to be a multiple of the unit and reachable."""
-    space = fam.space()
-    given = section(value, "model.charge", space.charge_names, what="charge")
-    default = fam.default_charge(sites)
-    target: list[int] = []
-    for name, unit in zip(space.charge_names, space.charge_units):
-        where = f"model.charge.{name}"
-        q = real(given[name], where) if name in given else float(default[name])
-        k = q / unit
-        if abs(k - round(k)) > 1e-9 * max(1.0, abs(k)):
-            need = "a whole number" if unit == 1 else f"a multiple of {fmt(unit)}"
-            raise ConfigError(where, f"must be {need}, got {show(given[name])}")
-        target.append(int(round(k)))
-    reach = reachable_totals(np.asarray(space.charges), sites)
-    if not (reach == np.array(target)).all(axis=1).any():
-        _unreachable(space.charge_names, space.charge_units, reach, target, sites)
-    return {
-        name: float(k * unit) for name, unit, k in zip(space.charge_names, space.charge_units, target)
-    }
-
-
-def _unreachable(
-    names: tuple[str, ...], units: tuple[float, ...], reach: np.ndarray, target: list[int], sites: int
-) -> None:
-    if len(names) == 1:
-        values = [fmt(k * units[0]) for k in reach[:, 0]]
-        steps = set(np.diff(reach[:, 0]).tolist())
-        if len(values) > 6 and len(steps) == 1:
-            allowed = ", ".join(values[:2] + ["..."] + values[-1:])
-        else:
-            allowed = ", ".join(values)
-        raise ConfigError(
-            f"model.charge.{names[0]}",
-            f"must be one of {allowed} for {sites} sites, got {fmt(target[0] * units[0])}",
-        )
-    ranges = "; ".join(
-        f"{n} in [{fmt(reach[:, i].min() * u)}, {fmt(reach[:, i].max() * u)}]"
-        for i, (n, u) in enumerate(zip(names, units))
-    )
-    got = ", ".join(f"{n}={fmt(k * u)}" for n, u, k in zip(names, units, target))
-    raise ConfigError("model.charge", f"{got} is not reachable with {sites} sites ({ranges})")
 
 
 def _solver(sec: Mapping[str, Any]) -> SolverConfig:
@@ -228,7 +159,7 @@ def _analysis(sec: Mapping[str, Any], model: ModelConfig) -> AnalysisConfig:
             raise ConfigError(where, f"repeats the Renyi index {show(n)}")
         renyi.append(value)
     cuts = _cuts(sec.get("cuts", "all"), model.sites)
-    names = model.family_record().charge_names
+    names = model.space().charge_names
     resolve = sec.get("resolve", names[0])
     if resolve not in (*names, "joint"):
         raise ConfigError(

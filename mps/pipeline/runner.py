@@ -53,11 +53,11 @@ def solver_hash(cfg: RunConfig) -> str:
 
 def build_operator(cfg: RunConfig) -> Mpo:
     """The chain's MPO; a non-conserving or non-Hermitian chain is bad input (exit code 2)."""
-    fam = cfg.model.family_record()
     try:
-        return build_mpo(fam.space(), cfg.model.sites, cfg.model.terms())
+        return build_mpo(cfg.model.space(), cfg.model.sites, cfg.model.terms())
     except OperatorError as exc:
-        raise InputError(f"model: {exc}") from None
+        text = str(exc)
+        raise InputError(text if text.startswith("model.") else f"model: {text}") from None
 
 
 def sweep_settings(cfg: RunConfig) -> SweepSettings:
@@ -199,7 +199,7 @@ def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: SectorSweeper, se
 
 def _write_analysis(directory: Path, cfg: RunConfig, state, summary: dict, renyi=None, cuts=None) -> None:
     """Entanglement tables of every requested cut; the weight floor goes into the summary."""
-    space = cfg.model.family_record().space()
+    space = cfg.model.space()
     tables = entanglement_tables(state, space.charge_units, cfg.analysis, space.charge_names, renyi, cuts)
     write_tables(directory, tables)
     summary["weight_floor"] = cfg.analysis.weight_floor
@@ -217,6 +217,10 @@ def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine
     xi = (report.get("correlation_length") or {}).get("xi")
     line = "fits: " + ", ".join(f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k))
                                 if value is not None)
+    for name, entry in (report.get("luttinger_by_charge") or {}).items():
+        line += (f", K_{name} = {entry['value']:.4f}" if entry.get("value") is not None
+                 else f", {name} gapped (xi = {entry['correlation_length']:.3g})" if entry.get("regime") == "gapped"
+                 else "")
     if report.get("correlation_length"):
         line += (f", correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
                  else ", no exponential decay of charge correlations")

@@ -10,6 +10,10 @@ result. Schema (defaults in brackets; unknown keys at any level are refused)::
       sites: int >= 2
       couplings: {name: finite number}          [family defaults]
       charge: {charge name: physical value}     [family default sector]
+      nmax: int in 1..12                        [bosons: 4]
+      (family written only) basis: catalogue name, nmax (boson bases), conserve: [charge names]
+      [all], terms: [{product: str, coef: number | coupling | {value, stagger, dimer} | {per_site},
+      plus_hc: bool [false]}]; see mps.pipeline.model_section
     solver:
       stages: [{bond: int >= 1, sweeps: int >= 1, admix: number >= 0}]
                                                 [[{bond: 32, sweeps: 2}, {bond: 128, sweeps: 6}];
@@ -36,12 +40,12 @@ from typing import Any
 import yaml
 
 from models import ModelFamily, get_family
-from mps.chain.lattice import Term
+from mps.chain.lattice import LocalSpace, Term
 
 # key names of each section, in the order they are written back
 
 TOP_KEYS = ("name", "model", "solver", "analysis", "output")
-MODEL_KEYS = ("family", "sites", "couplings", "charge")
+MODEL_KEYS = ("family", "sites", "couplings", "charge")   # plus the family's options
 SOLVER_KEYS = ("stages", "discard", "energy_tol", "seed", "lanczos_vectors", "lanczos_restarts",
                "lanczos_tol", "init")
 STAGE_KEYS = ("bond", "sweeps", "admix")
@@ -56,36 +60,50 @@ INIT_CHOICES = ("random", "product")
 
 @dataclass(frozen=True)
 class ModelConfig:
-    """The chain: family name, number of sites, all couplings, target charge (physical values)."""
+    """The chain: family name, number of sites, all couplings, target charge (physical values),
+    and the family's further keys (``options``: nmax; basis, conserve and terms of written chains)."""
 
     family: str
     sites: int
     couplings: dict[str, float] = field(hash=False)
     charge: dict[str, float] = field(hash=False)
+    options: dict[str, Any] = field(default_factory=dict, hash=False)
 
     def family_record(self) -> ModelFamily:
         """The registered :class:`models.ModelFamily`."""
         return get_family(self.family)
 
+    def space(self) -> LocalSpace:
+        """The local basis of this chain (its charge names and units)."""
+        return self.family_record().space(self.options)
+
     def terms(self) -> list[Term]:
         """Hamiltonian terms of this chain."""
-        return self.family_record().terms(self.sites, self.couplings)
+        return self.family_record().terms(self.sites, self.couplings, self.options)
 
     def integer_charge(self) -> tuple[int, ...]:
-        """Target charge in integer units, ordered as the family's ``charge_names``."""
-        space = self.family_record().space()
+        """Target charge in integer units, ordered as the space's ``charge_names``."""
+        space = self.space()
         return tuple(
             int(round(self.charge[name] / unit))
             for name, unit in zip(space.charge_names, space.charge_units)
         )
 
     def to_dict(self) -> dict[str, Any]:
-        return {
+        out = {
             "family": self.family,
             "sites": self.sites,
             "couplings": dict(self.couplings),
             "charge": dict(self.charge),
         }
+        for key, value in self.options.items():
+            if key == "terms":
+                out[key] = [t.to_dict() for t in value]
+            elif key == "conserve" and value is not None:
+                out[key] = list(value)
+            elif value is not None:
+                out[key] = value
+        return out
 
 
 @dataclass(frozen=True)

@@ -12,7 +12,15 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
-from mps.analysis.entanglement import default_alphas, entanglement_spectrum, resolve_cut, resolve_cut_joint
+import numpy as np
+
+from mps.analysis.entanglement import (
+    charge_moments,
+    default_alphas,
+    entanglement_spectrum,
+    resolve_cut,
+    resolve_cut_joint,
+)
 from mps.analysis.resolved import CutResolved
 from mps.chain.state import ChainState
 from mps.pipeline.errors import InputError
@@ -66,36 +74,51 @@ def resolve_state(state: ChainState, units: tuple[float, ...], analysis: Analysi
 
 def entanglement_tables(state: ChainState, units: tuple[float, ...], analysis: AnalysisConfig,
                         charge_names: tuple[str, ...], renyi=None, cuts=None) -> dict[str, Table]:
-    """Rows of entropies.csv, sectors.csv, moments.csv and spectrum.csv (keys without .csv)."""
+    """Rows of entropies.csv, sectors.csv, moments.csv and spectrum.csv (keys without .csv).
+
+    Resolved by one charge, every column refers to it. Resolved jointly (``analysis.resolve:
+    joint`` with several charges), sectors.csv has one charge column per charge
+    (``charge_<name>``) and S_number, S_config are those of the joint distribution, while the
+    cumulant columns and moments.csv refer to the first charge. Chains with several charges also
+    get ``charge_mean_<name>`` and ``charge_var_<name>`` for every charge.
+    """
     wanted = tuple(analysis.renyi if renyi is None else renyi)
     records = resolve_state(state, units, analysis, charge_names, wanted, cuts)
     labels = [renyi_label(n) for n in wanted]
     idx = [records[0].renyi.index(n) for n in wanted] if records else []
-    ent_cols = ["cut"] + [f"S_{x}" for x in labels] + ["charge_mean", "charge_var", "S_number", "S_config",
-                                                       "charge_k3", "charge_k4"]
+    several = len(charge_names) > 1
+    per_charge = ([f"charge_mean_{n}" for n in charge_names] + [f"charge_var_{n}" for n in charge_names]
+                  if several else [])
+    ent_cols = (["cut"] + [f"S_{x}" for x in labels]
+                + ["charge_mean", "charge_var", "S_number", "S_config", "charge_k3", "charge_k4"] + per_charge)
     ent_rows, sec_rows, mom_rows, spec_rows = [], [], [], []
     component = 0 if analysis.resolve == "joint" else charge_names.index(analysis.resolve)
-    joint = analysis.resolve == "joint" and len(charge_names) > 1
+    joint = analysis.resolve == "joint" and several
     for rec in records:
-        ent_rows.append([rec.cut] + [float(rec.entropy[i]) for i in idx]
-                        + [rec.cumulant(1), rec.cumulant(2), rec.number_entropy, rec.config_entropy,
-                           rec.cumulant(3), rec.cumulant(4)])
-        for n, i in zip(labels, idx):
-            for a, z in zip(rec.alphas, rec.moments[i]):
-                mom_rows.append([rec.cut, n, float(a), float(z.real), float(z.imag)])
+        spec = state.spectra[rec.cut].as_dict()
+        weights = rec
         if joint:
-            j = resolve_cut_joint(state.spectra[rec.cut].as_dict(), rec.cut, rec.renyi, units, None,
-                                  None, analysis.weight_floor)
-            for s in range(len(j.probability)):
-                sec_rows.append([rec.cut] + [charge_value(c) for c in j.charges[s]]
-                                + [float(j.probability[s])]
-                                + [float(j.sector_entropy[i][s]) + 0.0 for i in idx] + [int(j.counts[s])])
+            weights = resolve_cut_joint(spec, rec.cut, rec.renyi, units, None, None, analysis.weight_floor)
+            for s in range(len(weights.probability)):
+                sec_rows.append([rec.cut] + [charge_value(c) for c in weights.charges[s]]
+                                + [float(weights.probability[s])]
+                                + [float(weights.sector_entropy[i][s]) + 0.0 for i in idx]
+                                + [int(weights.counts[s])])
         else:
             for s, q in enumerate(rec.charges):
                 sec_rows.append([rec.cut, charge_value(q), float(rec.probability[s])]
                                 + [float(rec.sector_entropy[i][s]) + 0.0 for i in idx] + [int(rec.counts[s])])
-        for q, level, value in entanglement_spectrum(state.spectra[rec.cut].as_dict(), units, None,
-                                                     component, analysis.spectrum_levels):
+        extra = []
+        if several:
+            mean, cov = charge_moments(spec, units)
+            extra = [float(m) for m in mean] + [float(v) for v in np.diag(cov)]
+        ent_rows.append([rec.cut] + [float(rec.entropy[i]) for i in idx]
+                        + [rec.cumulant(1), rec.cumulant(2), weights.number_entropy, weights.config_entropy,
+                           rec.cumulant(3), rec.cumulant(4)] + extra)
+        for n, i in zip(labels, idx):
+            for a, z in zip(rec.alphas, rec.moments[i]):
+                mom_rows.append([rec.cut, n, float(a), float(z.real), float(z.imag)])
+        for q, level, value in entanglement_spectrum(spec, units, None, component, analysis.spectrum_levels):
             spec_rows.append([rec.cut, charge_value(q), level, value])
     charge_cols = [f"charge_{n}" for n in charge_names] if joint else ["charge"]
     return {

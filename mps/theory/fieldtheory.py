@@ -205,13 +205,16 @@ def fit_central_charge(cuts, entropies, L: int, n: float = 1.0,
 
 
 def fit_luttinger(cuts, variance, L: int, window: tuple[int, int] | None = None,
-                  exponent: float | None = None) -> LogFit:
-    """Least-squares fit of sigma^2(l) = (K/(2 pi^2)) log l_eff + const + A (-1)^l l_eff^(-p).
+                  exponent: float | None = None, slope: float = 1.0 / (2.0 * np.pi**2)) -> LogFit:
+    """Least-squares fit of sigma^2(l) = K s log l_eff + const + A (-1)^l l_eff^(-p).
 
-    One entangling point (DESIGN.md section 5). The parity term of open chains is fitted with
-    its exponent p (or p = ``exponent`` if given); window as in :func:`fit_central_charge`.
+    One entangling point (DESIGN.md section 5): s = 1/(2 pi^2) for the charge of a
+    one-component Luttinger liquid; other charges pass their own ``slope`` s (e.g. 1/pi^2 for the
+    particle number and 1/(4 pi^2) for S^z of a spinful chain, so that free fermions have K = 1).
+    The parity term of open chains is fitted with its exponent p (or p = ``exponent`` if given);
+    window as in :func:`fit_central_charge`.
     """
-    return _fit_log("charge_var", cuts, variance, L, 1.0 / (2.0 * np.pi**2), window, exponent)
+    return _fit_log("charge_var", cuts, variance, L, slope, window, exponent)
 
 
 def _fit_log(quantity: str, cuts, y, L: int, prefactor: float, window, exponent) -> LogFit:

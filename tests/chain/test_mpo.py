@@ -60,8 +60,8 @@ def test_fermion_mpo_with_long_range_hopping_has_jordan_wigner_strings():
     fam = get_family("fermions")
     space = fam.space()
     terms = fam.terms(5, dict(t=1.0, V=0.7, mu=0.2, mu_stag=0.1, dimer=0.2))
-    terms += [Term(0.4, ((0, "Cdag"), (3, "C"))), Term(0.4, ((3, "Cdag"), (0, "C"))),
-              Term(-0.3, ((1, "Cdag"), (4, "Cdag"), (4, "C"), (1, "C")))]
+    terms += [Term(0.4, ((0, "c^+"), (3, "c"))), Term(0.4, ((3, "c^+"), (0, "c"))),
+              Term(-0.3, ((1, "c^+"), (4, "c^+"), (4, "c"), (1, "c")))]
     mpo = build_mpo(space, 5, terms)
     np.testing.assert_allclose(mpo_to_dense(mpo), dense_terms(space, 5, terms), atol=1e-13)
 
@@ -76,11 +76,11 @@ def test_charge_labels_of_mpo_are_conserved():
 
 
 @pytest.mark.parametrize("terms, message", [
-    ([Term(1.0, ((0, "Sp"), (1, "Sp")))], "does not conserve"),
-    ([Term(1.0, ((0, "Sp"), (1, "Sm")))], "not Hermitian"),
-    ([Term(1.0j, ((0, "Sz"),))], "not Hermitian"),
+    ([Term(1.0, ((0, "S^+"), (1, "S^+")))], "does not conserve"),
+    ([Term(1.0, ((0, "S^+"), (1, "S^-")))], "not Hermitian"),
+    ([Term(1.0j, ((0, "S^z"),))], "not Hermitian"),
     ([Term(1.0, ((0, "Sx"),))], "unknown operator"),
-    ([Term(1.0, ((7, "Sz"),))], "outside"),
+    ([Term(1.0, ((7, "S^z"),))], "outside"),
 ])
 def test_bad_terms_are_refused(terms, message):
     fam = get_family("xxz")
@@ -91,7 +91,7 @@ def test_bad_terms_are_refused(terms, message):
 def test_odd_fermion_terms_are_refused():
     fam = get_family("fermions")
     with pytest.raises(OperatorError, match="odd number"):
-        build_mpo(fam.space(), 4, [Term(1.0, ((0, "C"),))])
+        build_mpo(fam.space(), 4, [Term(1.0, ((0, "c"),))])
 
 
 def test_hermiticity_check_is_free_of_round_off_on_long_chains():
@@ -100,6 +100,6 @@ def test_hermiticity_check_is_free_of_round_off_on_long_chains():
     fam = get_family("fermions")
     terms = fam.terms(120, dict(t=1.0, V=0.4, mu=0.3, mu_stag=0.1, dimer=0.2))
     build_mpo(fam.space(), 120, terms)
-    skewed = terms + [Term(1e-6, ((50, "Cdag"), (51, "C")))]
+    skewed = terms + [Term(1e-6, ((50, "c^+"), (51, "c")))]
     with pytest.raises(OperatorError, match="not Hermitian"):
         build_mpo(fam.space(), 120, skewed)

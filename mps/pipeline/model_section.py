@@ -1,0 +1,233 @@
+"""Reading the ``model:`` section of a config: family, size, couplings, charge sector, and the
+family's own keys (``nmax`` for bosons; ``basis``, ``nmax``, ``conserve`` and ``terms`` of a chain
+written in YAML).
+
+A written chain's terms, in the YAML form this module reads (see :mod:`models.written`)::
+
+    terms:
+      - product: "S^+(j) S^-(j+2)"      # operators on sites j + offset, in product order
+        coef: 0.5*J2                    # a number, a coupling name (J2, -J2, 0.5*J2), or
+                                        # {value: .., stagger: .., dimer: ..} or {per_site: [..]}
+        plus_hc: true                   # add the Hermitian conjugate [false]
+
+Every refusal is one line ``model.<field>: <what is wrong>``; terms that change a conserved
+charge, hold an odd number of fermion operators, use unknown operators or couplings, or never fit
+on the chain are refused here, before any solving.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from models import ModelFamily, family_names, get_family
+from models.bases import CATALOGUE, NMAX_LIMIT, basis_names, make_basis
+from models.terms import Amount, SitePattern, TermError, parse_amount, parse_product
+from models.written import WrittenTerm, WrittenTermError
+from mps.blocks.charges import reachable_totals
+from mps.chain.lattice import LocalSpace
+from mps.pipeline.errors import ConfigError
+from mps.pipeline.fields import boolean, fmt, integer, kind, real, section, show
+from mps.pipeline.schema import MODEL_KEYS, ModelConfig
+
+TERM_KEYS = ("product", "coef", "plus_hc")
+PATTERN_KEYS = ("value", "stagger", "dimer", "per_site")
+_COUPLING_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+
+
+def read_model(value: Any) -> ModelConfig:
+    """Validate the model section and resolve its defaults."""
+    if isinstance(value, Mapping) and "family" in value:
+        fam = _family(value["family"])
+        allowed = MODEL_KEYS + tuple(fam.options)
+    else:
+        fam, allowed = None, MODEL_KEYS
+    sec = section(value, "model", allowed, required=True)
+    for key in ("family", "sites"):
+        if key not in sec:
+            raise ConfigError(f"model.{key}", "is required")
+    sites = integer(sec["sites"], "model.sites", 2)
+    if fam.free_couplings:
+        options = _written_options(sec)
+        couplings = _named_couplings(sec.get("couplings"))
+    else:
+        options = {key: _option(key, sec[key], default) if key in sec else default
+                   for key, default in fam.options.items()}
+        given = section(sec.get("couplings"), "model.couplings", tuple(fam.couplings), what="coupling")
+        couplings = {
+            key: (real(given[key], f"model.couplings.{key}") if key in given else float(default))
+            for key, default in fam.couplings.items()
+        }
+    space = fam.space(options)
+    if fam.free_couplings:
+        _check_written(fam, sites, couplings, options)
+    charge = _charge(sec.get("charge"), fam, space, sites, options)
+    return ModelConfig(family=fam.name, sites=sites, couplings=couplings, charge=charge, options=options)
+
+
+def _family(name: Any) -> ModelFamily:
+    try:
+        return get_family(name)
+    except KeyError:
+        raise ConfigError("model.family", f"unknown family {show(name)}; valid: {', '.join(family_names())}") \
+            from None
+
+
+def _option(key: str, raw: Any, default: Any) -> Any:
+    if key == "nmax":
+        return _nmax(raw)
+    raise ConfigError(f"model.{key}", "is not a key this version can read")  # a family with a new option
+
+
+def _nmax(raw: Any) -> int:
+    n = integer(raw, "model.nmax", 1)
+    if n > NMAX_LIMIT:
+        raise ConfigError("model.nmax", f"must be an integer in 1..{NMAX_LIMIT}, got {show(raw)}")
+    return n
+
+
+# ----------------------------------------------------------------------------- charge sector
+def _charge(value: Any, fam: ModelFamily, space: LocalSpace, sites: int, options: dict) -> dict[str, float]:
+    """Target charge in physical units, checked to be a multiple of the unit and reachable."""
+    given = section(value, "model.charge", space.charge_names, what="charge")
+    if fam.free_couplings:
+        missing = [n for n in space.charge_names if n not in given]
+        if missing:
+            raise ConfigError(f"model.charge.{missing[0]}",
+                              f"is required for a written chain (charges: {', '.join(space.charge_names)})")
+        default = {}
+    else:
+        default = fam.default_charge(sites, options)
+    target: list[int] = []
+    for name, unit in zip(space.charge_names, space.charge_units):
+        where = f"model.charge.{name}"
+        q = real(given[name], where) if name in given else float(default[name])
+        k = q / unit
+        if abs(k - round(k)) > 1e-9 * max(1.0, abs(k)):
+            need = "a whole number" if unit == 1 else f"a multiple of {fmt(unit)}"
+            raise ConfigError(where, f"must be {need}, got {show(given[name])}")
+        target.append(int(round(k)))
+    reach = reachable_totals(np.asarray(space.charges), sites)
+    if not (reach == np.array(target)).all(axis=1).any():
+        _unreachable(space.charge_names, space.charge_units, reach, target, sites)
+    return {
+        name: float(k * unit) for name, unit, k in zip(space.charge_names, space.charge_units, target)
+    }
+
+
+def _unreachable(
+    names: tuple[str, ...], units: tuple[float, ...], reach: np.ndarray, target: list[int], sites: int
+) -> None:
+    if len(names) == 1:
+        values = [fmt(k * units[0]) for k in reach[:, 0]]
+        steps = set(np.diff(reach[:, 0]).tolist())
+        if len(values) > 6 and len(steps) == 1:
+            allowed = ", ".join(values[:2] + ["..."] + values[-1:])
+        else:
+            allowed = ", ".join(values)
+        raise ConfigError(
+            f"model.charge.{names[0]}",
+            f"must be one of {allowed} for {sites} sites, got {fmt(target[0] * units[0])}",
+        )
+    ranges = "; ".join(
+        f"{n} in [{fmt(reach[:, i].min() * u)}, {fmt(reach[:, i].max() * u)}]"
+        for i, (n, u) in enumerate(zip(names, units))
+    )
+    got = ", ".join(f"{n}={fmt(k * u)}" for n, u, k in zip(names, units, target))
+    raise ConfigError("model.charge", f"{got} is not reachable with {sites} sites ({ranges})")
+
+
+# ----------------------------------------------------------------------------- written chains
+def _written_options(sec: Mapping[str, Any]) -> dict[str, Any]:
+    basis = sec.get("basis")
+    if basis not in CATALOGUE:
+        raise ConfigError("model.basis", f"must be one of {', '.join(basis_names())}, got {show(basis)}")
+    if CATALOGUE[basis].needs_nmax:
+        if "nmax" not in sec:
+            raise ConfigError("model.nmax", f"is required for basis {basis} (an integer in 1..{NMAX_LIMIT})")
+        nmax = _nmax(sec["nmax"])
+    elif "nmax" in sec:
+        raise ConfigError("model.nmax", f"applies to the boson bases only, not to {basis}")
+    else:
+        nmax = None
+    charges = make_basis(basis, nmax).charge_names
+    conserve = sec.get("conserve")
+    if conserve is not None:
+        if (not isinstance(conserve, list) or not conserve or len(set(map(str, conserve))) != len(conserve)
+                or any(c not in charges for c in conserve)):
+            raise ConfigError("model.conserve", f"must be a non-empty list of distinct charges among "
+                                                f"{', '.join(charges)}, got {show(conserve)}")
+        conserve = tuple(conserve)
+    raw = sec.get("terms")
+    if not isinstance(raw, list) or not raw:
+        raise ConfigError("model.terms", f"must be a non-empty list of {{product, coef, plus_hc}}, got {show(raw)}")
+    terms = tuple(_written_term(item, f"model.terms[{i}]") for i, item in enumerate(raw))
+    return {"basis": basis, "nmax": nmax, "conserve": conserve, "terms": terms}
+
+
+def _written_term(raw: Any, where: str) -> WrittenTerm:
+    sec = section(raw, where, TERM_KEYS, required=True)
+    if "product" not in sec:
+        raise ConfigError(f"{where}.product", "is required, e.g. \"S^+(j) S^-(j+1)\"")
+    try:
+        product = parse_product(sec["product"])
+    except TermError as exc:
+        raise ConfigError(f"{where}.product", f"{exc}, got {show(sec['product'])}") from None
+    if "coef" not in sec:
+        raise ConfigError(f"{where}.coef", "is required (a number, a coupling name, or a pattern)")
+    coef = _pattern(sec["coef"], f"{where}.coef")
+    return WrittenTerm(product, coef, boolean(sec.get("plus_hc", False), f"{where}.plus_hc"))
+
+
+def _amount(raw: Any, where: str) -> Amount:
+    try:
+        return parse_amount(raw)
+    except TermError as exc:
+        raise ConfigError(where, str(exc)) from None
+
+
+def _pattern(raw: Any, where: str) -> SitePattern:
+    if not isinstance(raw, Mapping):
+        return SitePattern(_amount(raw, where))
+    sec = section(raw, where, PATTERN_KEYS)
+    if "per_site" in sec:
+        if len(sec) > 1:
+            raise ConfigError(where, "per_site cannot be combined with value, stagger or dimer")
+        values = sec["per_site"]
+        if not isinstance(values, list) or not values:
+            raise ConfigError(f"{where}.per_site", f"must be a non-empty list of numbers, got {kind(values)}")
+        return SitePattern(per_site=tuple(_amount(v, f"{where}.per_site[{i}]") for i, v in enumerate(values)))
+    if "value" not in sec:
+        raise ConfigError(f"{where}.value", "is required in a pattern (with stagger and/or dimer)")
+    zero = Amount(0.0)
+    return SitePattern(_amount(sec["value"], f"{where}.value"),
+                       _amount(sec["stagger"], f"{where}.stagger") if "stagger" in sec else zero,
+                       _amount(sec["dimer"], f"{where}.dimer") if "dimer" in sec else zero)
+
+
+def _named_couplings(raw: Any) -> dict[str, float]:
+    if raw is None:
+        return {}
+    if not isinstance(raw, Mapping):
+        raise ConfigError("model.couplings", f"must be a mapping of names to numbers, got {kind(raw)}")
+    out = {}
+    for name, value in raw.items():
+        if not isinstance(name, str) or not _COUPLING_NAME.fullmatch(name):
+            raise ConfigError("model.couplings", f"names must be letters, digits and _ (not first), got {show(name)}")
+        out[name] = real(value, f"model.couplings.{name}")
+    return out
+
+
+def _check_written(fam: ModelFamily, sites: int, couplings: dict[str, float], options: dict) -> None:
+    """Place every term once (refusing what cannot be placed) and refuse unused couplings."""
+    try:
+        fam.terms(sites, couplings, options)
+    except WrittenTermError as exc:
+        raise ConfigError(f"model.terms[{exc.index}]", f"{exc.product}: {exc.message}") from None
+    used = set().union(*(t.coef.names() for t in options["terms"]))
+    for name in couplings:
+        if name not in used:
+            raise ConfigError(f"model.couplings.{name}", "is not used by any term (misspelt?)")
