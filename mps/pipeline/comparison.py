@@ -215,6 +215,7 @@ def _luttinger(cfg: RunConfig, records: list[CutResolved], window) -> dict:
     cuts, _, var = _series(records)
     slope = cfg.model.family_record().variance_slope(cfg.model.space().charge_names[_component(cfg)])
     out = _wrap(_fit_or_error(fit_luttinger, cuts, var, cfg.model.sites, window, slope=slope))
+    out["slope"] = slope
     known = bethe_ansatz_luttinger(cfg)
     out["bethe_ansatz"] = known
     out["relative_difference"] = None if known is None or out["value"] is None else out["value"] / known - 1.0

@@ -20,6 +20,7 @@ from pathlib import Path
 
 import matplotlib
 
+from mps.pipeline.plots.charges import draw_joint_sectors, draw_variance_by_charge
 from mps.pipeline.plots.common import DPI, PLOTS, STYLE, RunFiles, load_table, renyi_columns
 from mps.pipeline.plots.history import draw_sweeps
 from mps.pipeline.plots.moments import draw_charged_moments
@@ -34,6 +35,8 @@ FIGURES = (
     ("charge_distribution.png", draw_charge_distribution),
     ("charged_moments.png", draw_charged_moments),
     ("sweeps.png", draw_sweeps),
+    ("variance_by_charge.png", draw_variance_by_charge),
+    ("joint_sectors.png", draw_joint_sectors),
 )
 
 

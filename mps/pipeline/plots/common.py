@@ -32,7 +32,7 @@ FIT_STYLE = dict(ls="--", lw=1.1)
 SECTOR_THRESHOLD = 1e-3          # p(q) above which a sector is drawn as "well resolved" (filled)
 COUPLING_TEX = {"Delta": r"\Delta", "h_stag": r"h_{\rm stag}", "mu": r"\mu", "mu_stag": r"\mu_{\rm stag}",
                 "dimer": r"\delta"}
-CHARGE_TEX = {"Sz": r"{S^z_A}", "N": r"{N_A}"}
+CHARGE_TEX = {"Sz": r"{S^z_A}", "N": r"{N_A}", "Q": r"{Q_A}"}
 
 
 # ----------------------------------------------------------------------------- reading the run
@@ -203,8 +203,9 @@ def save(fig: Figure, path: Path) -> Path:
 
 
 def central_sectors(run: RunFiles) -> tuple[int, Table] | None:
+    """Rows of the central cut of a table resolved by one charge (None when jointly resolved)."""
     sec = run.sectors
-    if sec is None:
+    if sec is None or "charge" not in sec:
         return None
     cut = nearest_cut(sec["cut"], run.sites)
     rows = sec["cut"] == cut

@@ -106,7 +106,9 @@ def draw_charge_variance(run: RunFiles, path: Path) -> Path | None:
     L, cuts, var = run.sites, ent["cut"], ent["charge_var"]
     x = np.log(chord_length(cuts, L))
     lutt = lookup(run.comparison, "luttinger")
-    fit = fit_entry(lookup(lutt, "fit"))
+    fit = fit_entry(lookup(lutt, "fit")) if lookup(lutt, "value") is not None else None
+    slope = lookup(lutt, "slope")
+    slope = slope if isinstance(slope, (int, float)) else 1 / (2 * np.pi**2)
     fig = Figure(figsize=(7.6, 6.0), layout="constrained")
     ax = fig.subplots()
     inside = np.ones_like(cuts, dtype=bool)
@@ -123,14 +125,14 @@ def draw_charge_variance(run: RunFiles, path: Path) -> Path | None:
     if fit:
         xs = np.linspace(np.nanmin(x), np.nanmax(x), 50)
         K = fit["value"]
-        label = rf"fit $\frac{{K}}{{2\pi^2}}\log\ell_{{\rm eff}}$ + const, $K = {K:.3f}$"
+        label = rf"fit $K s\log\ell_{{\rm eff}}$ + const, $s = 1/{1 / slope:.1f}$, $K = {K:.3f}$"
         ba = lookup(lutt, "bethe_ansatz")
         if isinstance(ba, (int, float)):
             label += rf" (Bethe ansatz ${ba:.3f}$)"
-        ax.plot(xs, K / (2 * np.pi**2) * xs + fit["const"], color=colour(1), **FIT_STYLE, label=label)
+        ax.plot(xs, K * slope * xs + fit["const"], color=colour(1), **FIT_STYLE, label=label)
         lo, hi = fit["window"]
         xe = np.linspace(np.log(chord_length(min(lo, L - hi), L)), np.nanmax(x), 200)   # fitted range only
-        smooth = K / (2 * np.pi**2) * xe + fit["const"]
+        smooth = K * slope * xe + fit["const"]
         for sign in (1.0, -1.0):   # even-l and odd-l branches
             ax.plot(xe, smooth + sign * fit["alternating"] * np.exp(-fit["exponent"] * xe), color=colour(1),
                     ls=":", lw=0.9)
