@@ -9,7 +9,7 @@ textbook symbols spelled with ``^`` for superscripts and ``_`` for species label
 - ``spinless-fermion``: ``c^+ c n``; charge N.
 - ``spinful-fermion``: ``c_up^+ c_up c_dn^+ c_dn n_up n_dn n`` and the on-site spin ``S^z S^+ S^-``;
   charges N and Sz (stored as N_up - N_dn, unit 1/2).
-- ``boson``: ``b^+ b n``, occupations 0..``nmax``; charge N.
+- ``boson-mode``: ``b^+ b n``, occupations 0..``nmax``; charge N.
 - ``boson-ab``: ``a^+ a b^+ b n_a n_b n``, 0..``nmax`` each; charges Q = N_a - N_b and N = N_a + N_b.
 
 ``X^+`` is the Hermitian conjugate of ``X`` (c^dagger written c^+), so ``S^+`` raises S^z and
@@ -158,7 +158,7 @@ CATALOGUE: dict[str, BasisEntry] = {
         BasisEntry("spin-one", "spin 1; charge Sz", False, spin_one),
         BasisEntry("spinless-fermion", "one fermion mode; charge N", False, spinless_fermion),
         BasisEntry("spinful-fermion", "spin-1/2 fermions; charges N and Sz", False, spinful_fermion),
-        BasisEntry("boson", "bosons, occupations 0..nmax; charge N", True, boson),
+        BasisEntry("boson-mode", "one boson mode, occupations 0..nmax; charge N", True, boson),
         BasisEntry("boson-ab", "two boson species a, b, 0..nmax each; charges Q = N_a - N_b, N = N_a + N_b",
                    True, boson_ab),
     )

@@ -2,7 +2,7 @@
 
 H = -t sum_{j=0}^{L-2} (b+_j b_{j+1} + h.c.) + (U/2) sum_j n_j (n_j - 1) - mu sum_j n_j,
 
-on the ``boson`` site of :mod:`models.bases` with occupations 0..nmax (``nmax`` is a key of
+on the ``boson-mode`` site of :mod:`models.bases` with occupations 0..nmax (``nmax`` is a key of
 ``model:``). The conserved charge is the particle number N. The cutoff is exact only when the
 weight of the top occupation is negligible; at small U keep nmax well above the filling.
 """
@@ -30,7 +30,7 @@ def space(opts) -> LocalSpace:
 def terms(sites: int, c: Mapping[str, float], opts) -> list[Term]:
     """Terms of H (see module docstring); n (n - 1) is written as the product n(j) n(j) - n(j)."""
     s = space(opts)
-    return (place("b^+(j) b(j+1)", -c["t"], s, sites, plus_hc=True)
+    return (place("b^+(j) b(j+1)", -c["t"], s, sites, add_conjugate=True)
             + place("n(j) n(j)", 0.5 * c["U"], s, sites)
             + place("n(j)", -0.5 * c["U"] - c["mu"], s, sites))
 

@@ -47,7 +47,7 @@ def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
     with a non-zero potential, one n term.
     """
     s = space()
-    return (place("c^+(j) c(j+1)", -hoppings(sites, c), s, sites, plus_hc=True)
+    return (place("c^+(j) c(j+1)", -hoppings(sites, c), s, sites, add_conjugate=True)
             + place("n(j) n(j+1)", c["V"], s, sites)
             + place("n(j)", -potentials(sites, c), s, sites))
 

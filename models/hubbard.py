@@ -41,8 +41,8 @@ def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
     """Terms of H (see module docstring); terms with a coefficient of exactly zero are left out."""
     s = space()
     hop = -dimerised(c["t"], c["dimer"], sites - 1)
-    return (place("c_up^+(j) c_up(j+1)", hop, s, sites, plus_hc=True)
-            + place("c_dn^+(j) c_dn(j+1)", hop, s, sites, plus_hc=True)
+    return (place("c_up^+(j) c_up(j+1)", hop, s, sites, add_conjugate=True)
+            + place("c_dn^+(j) c_dn(j+1)", hop, s, sites, add_conjugate=True)
             + place("n_up(j) n_dn(j)", c["U"], s, sites)
             + place("n(j)", -staggered(c["mu"], c["mu_stag"], sites), s, sites))
 

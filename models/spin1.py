@@ -32,7 +32,7 @@ def space(opts=None) -> LocalSpace:
 def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
     """Terms of H (see module docstring); (Sz_j)^2 is the product Sz(j) Sz(j)."""
     s = space()
-    return (place("S^+(j) S^-(j+1)", 0.5 * c["J"], s, sites, plus_hc=True)
+    return (place("S^+(j) S^-(j+1)", 0.5 * c["J"], s, sites, add_conjugate=True)
             + place("S^z(j) S^z(j+1)", c["J"] * c["Delta"], s, sites)
             + place("S^z(j) S^z(j)", c["D"], s, sites)
             + place("S^z(j)", c["h"], s, sites))

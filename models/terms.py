@@ -175,8 +175,8 @@ def placements(product: Product, sites: int) -> int:
     return sites - product.reach
 
 
-def place(product: Product | str, coefs, space: LocalSpace, sites: int, plus_hc: bool = False) -> list[Term]:
-    """Terms coef_j * product(j) for every placement j (plus the conjugates when ``plus_hc``).
+def place(product: Product | str, coefs, space: LocalSpace, sites: int, add_conjugate: bool = False) -> list[Term]:
+    """Terms coef_j * product(j) for every placement j (plus the conjugates when ``add_conjugate``).
 
     ``coefs`` is one number per placement (or a single number for all); placements whose
     coefficient is exactly zero are left out. Refuses (:class:`TermError`) unknown operators,
@@ -190,6 +190,6 @@ def place(product: Product | str, coefs, space: LocalSpace, sites: int, plus_hc:
     for j in np.nonzero(c)[0]:
         ops = tuple((int(j) + r, name) for r, name in prod.factors)
         out.append(Term(float(c[j]), ops))
-        if plus_hc:
+        if add_conjugate:
             out.append(Term(float(c[j]), adjoint(ops, space)))
     return out

@@ -1,7 +1,7 @@
 """Chains written in YAML: a basis from the catalogue and a list of products with coefficients.
 
 The family ``written`` turns the ``model:`` keys ``basis`` (a name of :mod:`models.bases`),
-``nmax`` (boson bases), ``conserve`` (which of the basis's charges to keep; all by default) and
+``nmax`` (boson bases), ``keep_charges`` (which of the basis's charges to keep; all by default) and
 ``terms`` (a list of :class:`WrittenTerm`) into Hamiltonian terms. Couplings are named by the
 user (``couplings: {J1: 1.0, J2: 0.5}``) and referred to from the coefficients, so a scan can
 vary them by name. Example (a zig-zag chain: nearest and next-nearest exchange)::
@@ -13,9 +13,9 @@ vary them by name. Example (a zig-zag chain: nearest and next-nearest exchange):
       couplings: {J1: 1.0, J2: 0.4}
       charge: {Sz: 0}
       terms:
-        - {product: "S^+(j) S^-(j+1)", coef: 0.5*J1, plus_hc: true}
+        - {product: "S^+(j) S^-(j+1)", coef: 0.5*J1, add_conjugate: true}
         - {product: "S^z(j) S^z(j+1)", coef: J1}
-        - {product: "S^+(j) S^-(j+2)", coef: 0.5*J2, plus_hc: true}
+        - {product: "S^+(j) S^-(j+2)", coef: 0.5*J2, add_conjugate: true}
         - {product: "S^z(j) S^z(j+2)", coef: J2}
 
 Each term is checked on its own before any solving: known operators, an even number of fermion
@@ -39,7 +39,7 @@ DESCRIPTION = "a chain written in the config: basis, named couplings and a list 
 CHARGE_NAMES = ()          # those of the chosen basis (see space())
 COUPLINGS: dict[str, float] = {}
 FREE_COUPLINGS = True
-OPTIONS = {"basis": None, "nmax": None, "conserve": None, "terms": ()}
+OPTIONS = {"basis": None, "nmax": None, "keep_charges": None, "terms": ()}
 
 
 class WrittenTermError(TermError):
@@ -52,11 +52,11 @@ class WrittenTermError(TermError):
 
 @dataclass(frozen=True)
 class WrittenTerm:
-    """coef_j * product(j) over all placements j, plus its Hermitian conjugate if ``plus_hc``."""
+    """coef_j * product(j) over all placements j, plus its Hermitian conjugate if ``add_conjugate``."""
 
     product: Product
     coef: SitePattern
-    plus_hc: bool = False
+    add_conjugate: bool = False
 
     def label(self, index: int) -> str:
         return f"model.terms[{index}] ({self.product.text})"
@@ -70,13 +70,13 @@ class WrittenTerm:
             coef = c.value.written()
         else:
             coef = {"value": c.value.written(), "stagger": c.stagger.written(), "dimer": c.dimer.written()}
-        return {"product": self.product.text, "coef": coef, "plus_hc": self.plus_hc}
+        return {"product": self.product.text, "coef": coef, "add_conjugate": self.add_conjugate}
 
 
 def space(opts: Mapping) -> LocalSpace:
-    """The chosen basis, keeping the charges listed in ``conserve`` (all when it is None)."""
+    """The chosen basis, keeping the charges listed in ``keep_charges`` (all when it is None)."""
     site = make_basis(opts["basis"], opts["nmax"])
-    return site if opts["conserve"] is None else site.keep_charges(tuple(opts["conserve"]))
+    return site if opts["keep_charges"] is None else site.keep_charges(tuple(opts["keep_charges"]))
 
 
 def terms(sites: int, couplings: Mapping[str, float], opts: Mapping) -> list[Term]:
@@ -100,9 +100,9 @@ def terms(sites: int, couplings: Mapping[str, float], opts: Mapping) -> list[Ter
                 moved = ", ".join(f"{n} by {q * u:g}" for n, u, q in
                                   zip(site.charge_names, site.charge_units, change) if q)
                 raise TermError(f"changes {moved}; every term must conserve "
-                                f"{', '.join(site.charge_names)} (drop a charge with conserve: [...])")
+                                f"{', '.join(site.charge_names)} (drop a charge with keep_charges: [...])")
             coefs = wt.coef.values(placements(wt.product, sites), couplings)
-            placed = place(wt.product, coefs, site, sites, wt.plus_hc)
+            placed = place(wt.product, coefs, site, sites, wt.add_conjugate)
         except TermError as exc:
             raise WrittenTermError(i, text, str(exc)) from None
         out.extend(Term(t.coef, t.ops, wt.label(i)) for t in placed)

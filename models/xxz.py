@@ -47,7 +47,7 @@ def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
     with a non-zero field, one Sz term.
     """
     s, jj = space(), bond_couplings(sites, c)
-    return (place("S^+(j) S^-(j+1)", 0.5 * jj, s, sites, plus_hc=True)
+    return (place("S^+(j) S^-(j+1)", 0.5 * jj, s, sites, add_conjugate=True)
             + place("S^z(j) S^z(j+1)", jj * c["Delta"], s, sites)
             + place("S^z(j)", site_fields(sites, c), s, sites))
 

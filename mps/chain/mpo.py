@@ -259,5 +259,5 @@ def check_hermitian_sum(strings: list[LocalString], dense: list[np.ndarray], sit
         if label and hermitian_defect(group, sites, d, k) > rtol:
             raise OperatorError(f"{label}: is not Hermitian and neither is the whole sum "
                                 f"(||H - H^dagger|| / ||H|| = {defect:.3g}); add its conjugate "
-                                "(plus_hc: true, or a term with the conjugate product)")
+                                "(add_conjugate: true, or a term with the conjugate product)")
     raise OperatorError(f"the Hamiltonian is not Hermitian: ||H - H^dagger|| / ||H|| = {defect:.3g}")

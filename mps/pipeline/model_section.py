@@ -1,5 +1,5 @@
 """Reading the ``model:`` section of a config: family, size, couplings, charge sector, and the
-family's own keys (``nmax`` for bosons; ``basis``, ``nmax``, ``conserve`` and ``terms`` of a chain
+family's own keys (``nmax`` for bosons; ``basis``, ``nmax``, ``keep_charges`` and ``terms`` of a chain
 written in YAML).
 
 A written chain's terms, in the YAML form this module reads (see :mod:`models.written`)::
@@ -8,7 +8,7 @@ A written chain's terms, in the YAML form this module reads (see :mod:`models.wr
       - product: "S^+(j) S^-(j+2)"      # operators on sites j + offset, in product order
         coef: 0.5*J2                    # a number, a coupling name (J2, -J2, 0.5*J2), or
                                         # {value: .., stagger: .., dimer: ..} or {per_site: [..]}
-        plus_hc: true                   # add the Hermitian conjugate [false]
+        add_conjugate: true                   # add the Hermitian conjugate [false]
 
 Every refusal is one line ``model.<field>: <what is wrong>``; terms that change a conserved
 charge, hold an odd number of fermion operators, use unknown operators or couplings, or never fit
@@ -33,7 +33,7 @@ from mps.pipeline.errors import ConfigError
 from mps.pipeline.fields import boolean, fmt, integer, kind, real, section, show
 from mps.pipeline.schema import MODEL_KEYS, ModelConfig
 
-TERM_KEYS = ("product", "coef", "plus_hc")
+TERM_KEYS = ("product", "coef", "add_conjugate")
 PATTERN_KEYS = ("value", "stagger", "dimer", "per_site")
 _COUPLING_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 
@@ -154,18 +154,18 @@ def _written_options(sec: Mapping[str, Any]) -> dict[str, Any]:
     else:
         nmax = None
     charges = make_basis(basis, nmax).charge_names
-    conserve = sec.get("conserve")
+    conserve = sec.get("keep_charges")
     if conserve is not None:
         if (not isinstance(conserve, list) or not conserve or len(set(map(str, conserve))) != len(conserve)
                 or any(c not in charges for c in conserve)):
-            raise ConfigError("model.conserve", f"must be a non-empty list of distinct charges among "
+            raise ConfigError("model.keep_charges", f"must be a non-empty list of distinct charges among "
                                                 f"{', '.join(charges)}, got {show(conserve)}")
         conserve = tuple(conserve)
     raw = sec.get("terms")
     if not isinstance(raw, list) or not raw:
-        raise ConfigError("model.terms", f"must be a non-empty list of {{product, coef, plus_hc}}, got {show(raw)}")
+        raise ConfigError("model.terms", f"must be a non-empty list of {{product, coef, add_conjugate}}, got {show(raw)}")
     terms = tuple(_written_term(item, f"model.terms[{i}]") for i, item in enumerate(raw))
-    return {"basis": basis, "nmax": nmax, "conserve": conserve, "terms": terms}
+    return {"basis": basis, "nmax": nmax, "keep_charges": conserve, "terms": terms}
 
 
 def _written_term(raw: Any, where: str) -> WrittenTerm:
@@ -179,7 +179,7 @@ def _written_term(raw: Any, where: str) -> WrittenTerm:
     if "coef" not in sec:
         raise ConfigError(f"{where}.coef", "is required (a number, a coupling name, or a pattern)")
     coef = _pattern(sec["coef"], f"{where}.coef")
-    return WrittenTerm(product, coef, boolean(sec.get("plus_hc", False), f"{where}.plus_hc"))
+    return WrittenTerm(product, coef, boolean(sec.get("add_conjugate", False), f"{where}.add_conjugate"))
 
 
 def _amount(raw: Any, where: str) -> Amount:

@@ -11,9 +11,9 @@ result. Schema (defaults in brackets; unknown keys at any level are refused)::
       couplings: {name: finite number}          [family defaults]
       charge: {charge name: physical value}     [family default sector]
       nmax: int in 1..12                        [bosons: 4]
-      (family written only) basis: catalogue name, nmax (boson bases), conserve: [charge names]
+      (family written only) basis: catalogue name, nmax (boson bases), keep_charges: [charge names]
       [all], terms: [{product: str, coef: number | coupling | {value, stagger, dimer} | {per_site},
-      plus_hc: bool [false]}]; see mps.pipeline.model_section
+      add_conjugate: bool [false]}]; see mps.pipeline.model_section
     solver:
       stages: [{bond: int >= 1, sweeps: int >= 1, admix: number >= 0}]
                                                 [[{bond: 32, sweeps: 2}, {bond: 128, sweeps: 6}];
@@ -99,7 +99,7 @@ class ModelConfig:
         for key, value in self.options.items():
             if key == "terms":
                 out[key] = [t.to_dict() for t in value]
-            elif key == "conserve" and value is not None:
+            elif key == "keep_charges" and value is not None:
                 out[key] = list(value)
             elif value is not None:
                 out[key] = value

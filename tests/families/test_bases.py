@@ -78,7 +78,7 @@ def test_spinful_fermion_algebra_and_charges():
 def test_boson_ladder_below_the_cutoff(nmax):
     # Source: harmonic-oscillator ladder algebra (exact, standard): [b, b+] = 1 on every state
     # below the cutoff; b+ b = n.
-    s = make_basis("boson", nmax)
+    s = make_basis("boson-mode", nmax)
     b, bd, n = s.ops["b"], s.ops["b^+"], s.ops["n"]
     comm = b @ bd - bd @ b
     np.testing.assert_allclose(np.diag(comm)[:-1], 1.0)
@@ -111,8 +111,8 @@ def test_catalogue_refusals():
     with pytest.raises(KeyError, match="known: spin-half"):
         make_basis("electron")
     with pytest.raises(ValueError, match="needs an integer nmax"):
-        make_basis("boson")
+        make_basis("boson-mode")
     with pytest.raises(ValueError, match=f"1..{NMAX_LIMIT}"):
-        make_basis("boson", NMAX_LIMIT + 1)
+        make_basis("boson-mode", NMAX_LIMIT + 1)
     with pytest.raises(ValueError, match="takes no nmax"):
         make_basis("spin-one", 2)

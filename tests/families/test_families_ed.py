@@ -79,9 +79,9 @@ def test_written_zigzag_chain_with_next_nearest_neighbours():
     # J1-J2 chain (zig-zag ladder) with an xxz anisotropy on the second-neighbour bonds.
     L = 10
     model = written("spin-half", L, {"J1": 1.0, "J2": 0.45}, {"Sz": 0}, [
-        {"product": "S^+(j) S^-(j+1)", "coef": "0.5*J1", "plus_hc": True},
+        {"product": "S^+(j) S^-(j+1)", "coef": "0.5*J1", "add_conjugate": True},
         {"product": "S^z(j) S^z(j+1)", "coef": "J1"},
-        {"product": "S^+(j) S^-(j+2)", "coef": "0.5*J2", "plus_hc": True},
+        {"product": "S^+(j) S^-(j+2)", "coef": "0.5*J2", "add_conjugate": True},
         {"product": "S^z(j) S^z(j+2)", "coef": "0.7*J2"},
     ])
     mpo, search = solve_written(model, EXACT)
@@ -96,7 +96,7 @@ def test_written_chain_with_per_site_couplings():
     rng = np.random.default_rng(7)
     bonds, fields = rng.uniform(0.5, 1.5, L - 1), rng.uniform(-1.0, 1.0, L)
     model = written("spin-half", L, {}, {"Sz": 0.5}, [
-        {"product": "S^+(j) S^-(j+1)", "coef": {"per_site": [0.5 * b for b in bonds]}, "plus_hc": True},
+        {"product": "S^+(j) S^-(j+1)", "coef": {"per_site": [0.5 * b for b in bonds]}, "add_conjugate": True},
         {"product": "S^z(j) S^z(j+1)", "coef": {"per_site": bonds.tolist()}},
         {"product": "S^z(j)", "coef": {"per_site": fields.tolist()}},
     ])
@@ -110,8 +110,8 @@ def test_written_two_species_bosons():
     # Q = N_a - N_b and N = N_a + N_b conserved. L = 6, nmax = 2 (d = 9).
     L = 6
     model = written("boson-ab", L, {"t": 1.0, "U": 1.5, "V": 0.7}, {"Q": 1, "N": 5}, [
-        {"product": "a^+(j) a(j+1)", "coef": "-t", "plus_hc": True},
-        {"product": "b^+(j) b(j+1)", "coef": "-t", "plus_hc": True},
+        {"product": "a^+(j) a(j+1)", "coef": "-t", "add_conjugate": True},
+        {"product": "b^+(j) b(j+1)", "coef": "-t", "add_conjugate": True},
         {"product": "n_a(j) n_a(j)", "coef": "0.5*U"},
         {"product": "n_a(j)", "coef": "-0.5*U"},
         {"product": "n_b(j) n_b(j)", "coef": "0.5*U"},

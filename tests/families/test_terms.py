@@ -61,7 +61,7 @@ def test_site_patterns():
 
 
 def test_place_with_conjugate_and_zero_coefficients():
-    terms = place("S^+(j) S^-(j+2)", [0.5, 0.0, -1.0], SPIN, 5, plus_hc=True)
+    terms = place("S^+(j) S^-(j+2)", [0.5, 0.0, -1.0], SPIN, 5, add_conjugate=True)
     assert terms == [Term(0.5, ((0, "S^+"), (2, "S^-"))), Term(0.5, ((2, "S^+"), (0, "S^-"))),
                      Term(-1.0, ((2, "S^+"), (4, "S^-"))), Term(-1.0, ((4, "S^+"), (2, "S^-")))]
     # (c+_{j,up} c_{j+1,up})^dagger = c+_{j+1,up} c_{j,up}: reversed order, adjoint names

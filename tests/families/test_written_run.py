@@ -24,7 +24,7 @@ WRITTEN = {
     "family": "written", "basis": "spin-half", "sites": L, "charge": {"Sz": 1},
     "couplings": {"J": 1.0, "Delta_J": 0.7, "h": 0.05, "h_stag": 0.2},
     "terms": [
-        {"product": "S^+(j) S^-(j+1)", "coef": {"value": "0.5*J", "dimer": 0.15}, "plus_hc": True},
+        {"product": "S^+(j) S^-(j+1)", "coef": {"value": "0.5*J", "dimer": 0.15}, "add_conjugate": True},
         {"product": "S^z(j) S^z(j+1)", "coef": {"value": "Delta_J", "dimer": 0.15}},
         {"product": "S^z(j)", "coef": {"value": "h", "stagger": "h_stag"}},
     ],

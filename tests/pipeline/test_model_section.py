@@ -19,9 +19,9 @@ ZIGZAG = {
         "family": "written", "basis": "spin-half", "sites": 10,
         "couplings": {"J1": 1.0, "J2": 0.4}, "charge": {"Sz": 0},
         "terms": [
-            {"product": "S^+(j) S^-(j+1)", "coef": "0.5*J1", "plus_hc": True},
+            {"product": "S^+(j) S^-(j+1)", "coef": "0.5*J1", "add_conjugate": True},
             {"product": "S^z(j) S^z(j+1)", "coef": "J1"},
-            {"product": "S^+(j) S^-(j+2)", "coef": "0.5*J2", "plus_hc": True},
+            {"product": "S^+(j) S^-(j+2)", "coef": "0.5*J2", "add_conjugate": True},
             {"product": "S^z(j) S^z(j+2)", "coef": {"value": "J2", "dimer": 0.1}},
         ],
     },
@@ -32,8 +32,8 @@ HOPPING = {
     "model": {
         "family": "written", "basis": "spinful-fermion", "sites": 6, "charge": {"N": 6, "Sz": 0},
         "terms": [
-            {"product": "c_up^+(j) c_up(j+1)", "coef": -1.0, "plus_hc": True},
-            {"product": "c_dn^+(j) c_dn(j+1)", "coef": -1.0, "plus_hc": True},
+            {"product": "c_up^+(j) c_up(j+1)", "coef": -1.0, "add_conjugate": True},
+            {"product": "c_dn^+(j) c_dn(j+1)", "coef": -1.0, "add_conjugate": True},
             {"product": "n_up(j) n_dn(j)", "coef": {"per_site": [4, 4, 4, 4, 4, 4.5]}},
         ],
     },
@@ -55,7 +55,7 @@ def with_model(base, **keys):
 
 # name -> (config, field the message names, text it must contain)
 BAD = {
-    "changes the charge": (with_term(ZIGZAG, 2, {"product": "S^+(j) S^+(j+1)", "coef": 1.0, "plus_hc": True}),
+    "changes the charge": (with_term(ZIGZAG, 2, {"product": "S^+(j) S^+(j+1)", "coef": 1.0, "add_conjugate": True}),
                            "model.terms[2]", "S^+(j) S^+(j+1): changes Sz by 2"),
     "unknown operator": (with_term(ZIGZAG, 1, {"product": "S^x(j) S^x(j+1)", "coef": 1.0}),
                          "model.terms[1]", "unknown operator 'S^x'"),
@@ -74,11 +74,11 @@ BAD = {
                         "model.couplings.Jx", "not used by any term"),
     "missing charge": (with_model(ZIGZAG, charge={}), "model.charge.Sz", "is required for a written chain"),
     "nmax for spins": (with_model(ZIGZAG, nmax=3), "model.nmax", "boson bases only"),
-    "nmax missing": (with_model(ZIGZAG, basis="boson", charge={"N": 10}), "model.nmax", "is required"),
-    "conserve unknown": (with_model(ZIGZAG, conserve=["N"]), "model.conserve", "among Sz"),
+    "nmax missing": (with_model(ZIGZAG, basis="boson-mode", charge={"N": 10}), "model.nmax", "is required"),
+    "keep_charges unknown": (with_model(ZIGZAG, keep_charges=["N"]), "model.keep_charges", "among Sz"),
     "no terms": (with_model(ZIGZAG, terms=[]), "model.terms", "non-empty list"),
     "term key": (with_term(ZIGZAG, 0, {"product": "S^z(j)", "coef": 1.0, "hc": True}),
-                 "model.terms[0].hc", "allowed: coef, plus_hc, product"),
+                 "model.terms[0].hc", "allowed: add_conjugate, coef, product"),
     "bad coefficient": (with_term(ZIGZAG, 0, {"product": "S^z(j)", "coef": "2J"}),
                         "model.terms[0].coef", "coupling name such as J"),
     "pattern without value": (with_term(ZIGZAG, 0, {"product": "S^z(j)", "coef": {"dimer": 0.1}}),
@@ -123,7 +123,7 @@ def test_non_hermitian_sum_is_named_at_run(tmp_path, capsys):
     code, err = _run(tmp_path, data, capsys)
     assert code == 2 and len(err.splitlines()) == 1
     assert err.startswith("chargewise: model.terms[2] (S^+(j) S^-(j+2)): is not Hermitian")
-    assert "plus_hc: true" in err
+    assert "add_conjugate: true" in err
 
 
 def test_conjugate_written_as_its_own_term_is_accepted(tmp_path, capsys):
@@ -150,14 +150,14 @@ def test_coupling_values_enter_the_hash_and_the_terms():
     assert [t.coef for t in nnn] == pytest.approx([0.5 * (1 + 0.1 * (-1) ** j) for j in range(8)])
 
 
-def test_conserve_a_subset_of_the_charges():
+def test_keep_a_subset_of_the_charges():
     # a^+ b^+ changes N = N_a + N_b by 2 but keeps Q = N_a - N_b: allowed once only Q is conserved.
-    data = {"model": {"family": "written", "basis": "boson-ab", "nmax": 2, "sites": 4, "conserve": ["Q"],
-                      "charge": {"Q": 0}, "terms": [{"product": "a^+(j) b^+(j+1)", "coef": 0.3, "plus_hc": True},
+    data = {"model": {"family": "written", "basis": "boson-ab", "nmax": 2, "sites": 4, "keep_charges": ["Q"],
+                      "charge": {"Q": 0}, "terms": [{"product": "a^+(j) b^+(j+1)", "coef": 0.3, "add_conjugate": True},
                                                     {"product": "n(j)", "coef": 1.0}]}}
     cfg = parse_config(data)
     assert cfg.model.space().charge_names == ("Q",)
-    del data["model"]["conserve"]
+    del data["model"]["keep_charges"]
     data["model"]["charge"] = {"Q": 0, "N": 4}
     with pytest.raises(ConfigError, match="changes N by 2"):
         parse_config(data)
