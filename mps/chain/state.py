@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from mps.blocks.charges import Leg, reachable_charges
+from mps.blocks.charges import Leg
 from mps.blocks.contract import contract
 from mps.blocks.decompose import lq, qr
 from mps.blocks.tensor import BlockTensor
@@ -66,19 +66,36 @@ class ChainState:
 
 
 def bond_charge_sets(site_charges: np.ndarray, sites: int, target: tuple[int, ...]) -> list[list[tuple]]:
-    """Charges a left block of b sites can carry in a state of total charge ``target`` (b = 0..L)."""
-    local = reachable_charges(site_charges, 1)
-    left = [reachable_charges(site_charges, 0)]
+    """Charges a left block of b sites can carry in a state of total charge ``target`` (b = 0..L).
+
+    q is allowed on bond b when b sites can sum to q and the other L - b sites to target - q. The
+    sums reachable by n sites are kept as boolean grids over their bounding boxes (one dynamic
+    programme over the sites, as in :func:`mps.blocks.charges.reachable_totals`), so the cost is
+    that of array operations on the boxes, not of Python loops over charge vectors.
+    """
+    local = np.asarray(site_charges, dtype=np.int64).reshape(len(site_charges), -1)
+    lo = local.min(axis=0)
+    shifted = local - lo
+    span = shifted.max(axis=0)
+    grids = [np.ones((1,) * local.shape[1], dtype=bool)]
     for _ in range(sites):
-        left.append({tuple(a + b for a, b in zip(r, q)) for r in left[-1] for q in local})
-    right = left[::-1]
-    target = tuple(target)
+        grid = grids[-1]
+        grown = np.zeros(tuple(np.add(grid.shape, span)), dtype=bool)
+        for q in shifted:
+            grown[tuple(slice(a, a + n) for a, n in zip(q, grid.shape))] |= grid
+        grids.append(grown)
+    target = np.asarray(tuple(target), dtype=np.int64)
     out = []
     for b in range(sites + 1):
-        ok = [q for q in left[b] if tuple(t - c for t, c in zip(target, q)) in right[b]]
-        if not ok:
-            raise ValueError(f"total charge {target} cannot be reached on {sites} sites")
-        out.append(sorted(ok))
+        left = np.argwhere(grids[b])                      # shifted by b * lo
+        right = target - (left + b * lo) - (sites - b) * lo   # shifted index into grids[L - b]
+        shape = np.asarray(grids[sites - b].shape)
+        inside = np.all((right >= 0) & (right < shape), axis=1)
+        ok = np.zeros(len(left), dtype=bool)
+        ok[inside] = grids[sites - b][tuple(right[inside].T)]
+        if not ok.any():
+            raise ValueError(f"total charge {tuple(int(t) for t in target)} cannot be reached on {sites} sites")
+        out.append(sorted(tuple(int(c) for c in row) for row in left[ok] + b * lo))
     return out
 
 

@@ -31,6 +31,8 @@ Keys of comparison.json (forms and sources in :mod:`mps.theory.fieldtheory`):
   ``value`` (K of that charge, null when the charge is gapped), ``slope`` (s in sigma^2 = K s log
   l_eff), ``fit``, ``regime`` (critical, gapped or unchecked), ``correlation_length`` and a
   ``reason`` when K is withheld (see :func:`luttinger_by_charge`);
+- ``regime``: ``verdict`` (gapped, critical or unchecked), ``xi``, ``reason``; on a gapped chain the
+  headline ``central_charge.value`` and ``luttinger.value`` are null (see :func:`regime`);
 - ``correlation_length``: the result of :func:`mps.analysis.correlations.correlation_length` on the
   connected charge-charge correlations (xi, null when the decay is not exponential, as on a
   critical chain; amplitude, residual, window, ...) plus ``window_start_over_xi`` (the massive
@@ -151,6 +153,7 @@ def build_comparison(cfg: RunConfig, state: ChainState,
         "equipartition": _equipartition(records, mid_rec, settings.threshold),
         "charged_moments": _moments(mid_rec, settings.alpha_max),
         "correlation_length": None,
+        "regime": None,
         "exact": None,
     }
     component = _component(cfg)
@@ -158,12 +161,20 @@ def build_comparison(cfg: RunConfig, state: ChainState,
     corr = _solver_correlations(state, site_charge) if settings.correlations else None
     if corr is not None:
         report["correlation_length"] = _correlation_length(corr, window)
+    report["regime"] = regime(report["correlation_length"], window)
     if len(space.charge_names) > 1:
         by_charge = luttinger_by_charge(cfg, state, cuts, window, settings.correlations)
         report["luttinger_by_charge"] = by_charge
         resolved = by_charge[space.charge_names[_component(cfg)]]
         if resolved["regime"] == "gapped":   # the headline K of the resolved charge follows its regime
             report["luttinger"].update(value=None, reason=resolved["reason"])
+        if any(e["regime"] != "gapped" for e in by_charge.values()):   # one gapless sector keeps log l
+            report["regime"] = {"verdict": "critical", "xi": report["regime"]["xi"],
+                                "reason": "gapless sector(s): " + ", ".join(
+                                    n for n, e in by_charge.items() if e["regime"] != "gapped")}
+    if report["regime"]["verdict"] == "gapped":
+        for key in ("central_charge", "luttinger"):
+            report[key].update(value=None, reason=report["regime"]["reason"])
     tables: dict[str, Table] = {}
     exact = _exact(cfg, records, corr, settings)
     if exact is not None:
@@ -220,6 +231,27 @@ def _luttinger(cfg: RunConfig, records: list[CutResolved], window) -> dict:
     out["bethe_ansatz"] = known
     out["relative_difference"] = None if known is None or out["value"] is None else out["value"] / known - 1.0
     return out
+
+
+def regime(correlation: dict | None, window) -> dict:
+    """Whether the log-l forms apply: "gapped" when the charge correlations decay exponentially with
+    a correlation length below the smallest fitted block, "critical" when they do not decay
+    exponentially, "unchecked" without measured correlations.
+
+    Gapped chains obey an area law (the entropy saturates at blocks beyond xi; Murciano, Di Giulio
+    and Calabrese, JHEP 08 (2020) 073, replace log l by log xi), so a central charge or a
+    Luttinger parameter fitted to log l_eff would be meaningless there: the headline values are
+    withheld (the fits stay under ``by_renyi`` and ``fit`` for reference).
+    """
+    if correlation is None:
+        return {"verdict": "unchecked", "xi": None, "reason": "charge correlations not measured"}
+    xi = correlation.get("xi")
+    if xi is not None and math.isfinite(xi) and xi < window[0]:
+        return {"verdict": "gapped", "xi": xi,
+                "reason": f"gapped: correlations decay exponentially (xi = {xi:.3g} sites, below the smallest "
+                          f"fitted block {window[0]}), area law; no log l fit"}
+    return {"verdict": "critical", "xi": xi, "reason": "no exponential decay of the charge correlations"
+            if xi is None or not math.isfinite(xi) else f"xi = {xi:.3g} sites exceeds the smallest fitted block"}
 
 
 def luttinger_by_charge(cfg: RunConfig, state: ChainState, cuts: list[int], window, correlations: bool) -> dict:

@@ -217,11 +217,14 @@ def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine
     xi = (report.get("correlation_length") or {}).get("xi")
     line = "fits: " + ", ".join(f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k))
                                 if value is not None)
+    gapped = (report.get("regime") or {}).get("verdict") == "gapped"
+    if gapped:
+        line = report["regime"]["reason"]
     for name, entry in (report.get("luttinger_by_charge") or {}).items():
         line += (f", K_{name} = {entry['value']:.4f}" if entry.get("value") is not None
                  else f", {name} gapped (xi = {entry['correlation_length']:.3g})" if entry.get("regime") == "gapped"
                  else "")
-    if report.get("correlation_length"):
+    if report.get("correlation_length") and not gapped:
         line += (f", correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
                  else ", no exponential decay of charge correlations")
     exact = report.get("exact") or {}

@@ -36,7 +36,8 @@ from chains import solve
 
 RENYI = (1.0, 2.0, 3.0, math.inf)
 TOP_KEYS = {"name", "family", "sites", "couplings", "charge", "renyi", "version", "window",
-            "central_charge", "luttinger", "equipartition", "charged_moments", "correlation_length", "exact"}
+            "central_charge", "luttinger", "luttinger_by_charge", "equipartition", "charged_moments",
+            "correlation_length", "regime", "exact"}
 
 
 def config(family: str, sites: int, couplings: dict, charge: dict, stages, **solver) -> dict:
@@ -112,6 +113,18 @@ def test_compare_run_on_free_chain(free_dimerised):
     mid = rep["equipartition"]
     assert mid["cut"] == 32 and set(mid["by_renyi"]) == {"1", "2", "3", "inf"}
     assert len(mid["per_cut"]["cut"]) == 63
+
+
+def test_gapped_chain_withholds_central_charge_and_luttinger(free_dimerised):
+    # The dimerised free chain is gapped (single-particle gap ~ 4 t dimer; exact, standard), so its
+    # entropy saturates (area law; Murciano, Di Giulio and Calabrese, JHEP 08 (2020) 073): the
+    # headline c and K are withheld with the reason, the raw fits stay for reference.
+    cfg, state = free_dimerised
+    rep = compare_run(cfg, state)
+    assert rep["regime"]["verdict"] == "gapped" and rep["regime"]["xi"] < rep["window"][0]
+    assert rep["central_charge"]["value"] is None and "area law" in rep["central_charge"]["reason"]
+    assert rep["luttinger"]["value"] is None
+    assert rep["central_charge"]["by_renyi"]["1"]["value"] is not None
 
 
 def test_correlations_of_massive_free_chain(free_dimerised):
@@ -193,3 +206,4 @@ def test_xxz_luttinger_and_central_charge_from_solver():
     assert rep["luttinger"]["bethe_ansatz"] == pytest.approx(0.75, rel=1e-14)
     assert rep["luttinger"]["value"] == pytest.approx(0.75, rel=0.05)
     assert rep["central_charge"]["value"] == pytest.approx(1.0, rel=0.05)
+    assert rep["regime"]["verdict"] == "critical"

@@ -35,7 +35,8 @@ def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
     if not cols:
         return None
     L, cuts = run.sites, ent["cut"]
-    fits = lookup(run.comparison, "central_charge", "by_renyi") or {}
+    gapped = lookup(run.comparison, "regime", "verdict") == "gapped"
+    fits = {} if gapped else (lookup(run.comparison, "central_charge", "by_renyi") or {})
     exact = run.exact_entropies
     fig = Figure(figsize=(11.5, 4.9), layout="constrained")
     ax1, ax2 = fig.subplots(1, 2)
@@ -80,6 +81,11 @@ def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
         ax1.axvspan(window[0], window[1], color="0.5", alpha=0.08, lw=0)
     ax1.set(xlabel=r"cut $\ell$ (sites in the left block)", ylabel=r"Rényi entropy $S_n(\ell)$",
             title="entanglement profile", xlim=(0, L))
+    if gapped:   # say why no Calabrese-Cardy curve is drawn
+        xi = lookup(run.comparison, "regime", "xi")
+        ax2.text(0.5, 0.5, "gapped chain" + (f" (correlation length {xi:.3g} sites)" if isinstance(xi, float) else "")
+                 + ":\narea law, so no Calabrese–Cardy fit", transform=ax2.transAxes, ha="center", va="center",
+                 fontsize=9.5, bbox=dict(facecolor="white", edgecolor="0.6", alpha=0.9))
     ax2.set(xlabel=r"$\log \ell_{\rm eff}$,  $\ell_{\rm eff} = (2L/\pi)\,\sin(\pi \ell/L)$",
             ylabel=r"$S_n - A_n(-1)^\ell\,\ell_{\rm eff}^{-p_n}$" if fits else r"$S_n(\ell)$",
             title="against the chord length" + (" (parity term removed)" if fits else ""))
