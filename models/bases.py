@@ -118,6 +118,7 @@ def boson(nmax: int) -> LocalSpace:
         charge_units=(1.0,),
         ops={"b^+": up, "b": up.T.copy(), "n": np.diag(np.arange(nmax + 1.0))},
         adjoints={"b^+": "b", "b": "b^+", "n": "n"},
+        cutoff=(np.arange(nmax + 1) == nmax).astype(float),
     )
 
 
@@ -139,6 +140,7 @@ def boson_ab(nmax: int) -> LocalSpace:
              "n_a": np.diag(na.astype(float)), "n_b": np.diag(nb.astype(float)),
              "n": np.diag((na + nb).astype(float))},
         adjoints={"a^+": "a", "a": "a^+", "b^+": "b", "b": "b^+", "n_a": "n_a", "n_b": "n_b", "n": "n"},
+        cutoff=((na == nmax) | (nb == nmax)).astype(float),
     )
 
 

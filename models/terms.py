@@ -164,8 +164,19 @@ def uniform(value: float) -> SitePattern:
 
 
 def adjoint(ops: Sequence[tuple[int, str]], space: LocalSpace) -> tuple[tuple[int, str], ...]:
-    """(O_1 ... O_m)^dagger = O_m^dagger ... O_1^dagger, by the basis's table of adjoint names."""
-    return tuple((site, space.adjoints[name]) for site, name in reversed(ops))
+    """(O_1 ... O_m)^dagger = O_m^dagger ... O_1^dagger, by the basis's table of adjoint names
+    (or, for a site without that table, the operator whose matrix is the conjugate transpose)."""
+    return tuple((site, _adjoint_name(name, space)) for site, name in reversed(ops))
+
+
+def _adjoint_name(name: str, space: LocalSpace) -> str:
+    if name in space.adjoints:
+        return space.adjoints[name]
+    dagger = space.ops[name].conj().T
+    for other, mat in space.ops.items():
+        if mat.shape == dagger.shape and np.allclose(mat, dagger, rtol=0.0, atol=1e-14):
+            return other
+    raise TermError(f"the conjugate of {name!r} is not among the site's operators")
 
 
 def placements(product: Product, sites: int) -> int:

@@ -22,9 +22,9 @@ from dataclasses import dataclass
 from functools import reduce
 
 import numpy as np
-import scipy.linalg as sla
 import scipy.sparse as sp
-import scipy.sparse.linalg as spla
+
+from reference_ed import ground_state
 
 DENSE_LIMIT = 3000  # sector dimension up to which sector_ground_state uses dense eigh
 CHARGE_TOL = 1e-9  # two physical charges are equal when they differ by less than this
@@ -285,19 +285,8 @@ def sector_ground_state(H: sp.spmatrix, charges: np.ndarray, target, degeneracy_
     index = sector_index(charges, target)
     if index.size == 0:
         raise ValueError(f"no product state has charge {tuple(target)}")
-    Hs = sp.csr_matrix(H)[index][:, index]
-    if index.size <= DENSE_LIMIT:
-        evals, evecs = sla.eigh(Hs.toarray(), subset_by_index=[0, min(1, index.size - 1)])
-    else:
-        evals, evecs = spla.eigsh(Hs, k=2, which="SA", tol=0.0)
-        order = np.argsort(evals)
-        evals, evecs = evals[order], evecs[:, order]
-    if evals.size > 1 and evals[1] - evals[0] < degeneracy_tol:
-        raise ValueError(f"sector {tuple(target)} ground state degenerate: gap {evals[1] - evals[0]:.3e}")
-    vec = evecs[:, 0]
-    big = vec[np.argmax(np.abs(vec))]
-    vec = vec * (abs(big) / big)
-    return float(evals[0]), vec / np.linalg.norm(vec), index
+    energy, vec = ground_state(sp.csr_matrix(H)[index][:, index], degeneracy_tol, DENSE_LIMIT)
+    return energy, vec, index
 
 
 def _charge_key(q: np.ndarray) -> tuple:

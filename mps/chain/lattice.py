@@ -29,6 +29,8 @@ class LocalSpace:
     parity : diagonal of the local fermion parity (-1)^n; ``None`` for bosonic sites.
     adjoints : operator name -> name of its Hermitian conjugate (``ops[adjoints[a]] = ops[a]^dagger``);
         used to write "plus Hermitian conjugate" of a product of named operators.
+    cutoff : 0/1 diagonal marking the basis states at an occupation cutoff (boson sites), or None;
+        the ground state's weight there says whether the cutoff is large enough.
     """
 
     charges: np.ndarray
@@ -38,6 +40,7 @@ class LocalSpace:
     fermionic: frozenset[str] = frozenset()
     parity: np.ndarray | None = None
     adjoints: dict[str, str] = field(default_factory=dict, hash=False, compare=False)
+    cutoff: np.ndarray | None = field(default=None, hash=False, compare=False)
 
     @property
     def dim(self) -> int:

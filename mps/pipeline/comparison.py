@@ -61,6 +61,7 @@ from mps.analysis.entanglement import charge_moments
 from mps.analysis.resolved import CutResolved
 from mps.chain.state import ChainState
 from mps.pipeline.errors import InputError
+from mps.pipeline.exact_check import EXACT_ENTROPIES, EXACT_SECTORS, deviations, exact_tables
 from mps.pipeline.rundir import write_json
 from mps.pipeline.schema import RunConfig
 from mps.pipeline.tables import Table, charge_value, renyi_label, resolve_state, write_tables
@@ -77,8 +78,6 @@ from mps.theory.fieldtheory import (
 from mps.theory.freefermions import charge_correlations, correlation_matrix, resolve_all_cuts
 
 COMPARISON = "comparison.json"
-EXACT_ENTROPIES = "exact_entropies"
-EXACT_SECTORS = "exact_sectors"
 
 
 @dataclass(frozen=True)
@@ -397,68 +396,3 @@ def _exact(cfg: RunConfig, records: list[CutResolved], corr: np.ndarray | None,
         i, j = np.unravel_index(int(np.argmax(d)), d.shape)
         report["max_deviation"]["charge_correlations"] = {"value": float(d[i, j]), "sites": [int(i), int(j)]}
     return report, exact_tables(exact)
-
-
-def deviations(solver: list[CutResolved], exact: list[CutResolved], rare: float = 1e-6) -> dict:
-    """Largest |solver - exact| over all cuts, with where it occurs.
-
-    p(q) over the union of sectors (a sector missing on one side counts as p = 0); S_n(q) over
-    the sectors with exact p(q) > ``rare``; total S_n; charged moments Z_n(alpha)/Z_n(0) at the
-    solver's fluxes for finite n (at n = inf the moment keeps only the largest level, a limit
-    that jumps wherever that level is degenerate, e.g. nu = 1/2, so round-off decides it on
-    both sides). ``missing_sectors`` counts sectors with exact p > ``rare`` whose entropy the
-    solver does not report.
-    """
-    worst = {k: {"value": 0.0} for k in ("probability", "sector_entropy", "entropy", "moments")}
-    missing = 0
-
-    def note(key: str, value: float, **where) -> None:
-        if value > worst[key]["value"]:
-            worst[key] = {"value": float(value), **where}
-
-    for s, e in zip(solver, exact):
-        if s.cut != e.cut or s.renyi != e.renyi:
-            raise ValueError(f"records do not match: cut {s.cut} vs {e.cut}, renyi {s.renyi} vs {e.renyi}")
-        ps = dict(zip(s.charges.tolist(), s.probability))
-        pe = dict(zip(e.charges.tolist(), e.probability))
-        for q in set(ps) | set(pe):
-            note("probability", abs(ps.get(q, 0.0) - pe.get(q, 0.0)), cut=s.cut, charge=charge_value(q))
-        for i, n in enumerate(s.renyi):
-            lab = renyi_label(n)
-            note("entropy", abs(s.entropy[i] - e.entropy[i]), cut=s.cut, n=lab)
-            if np.isfinite(n):
-                dz = np.abs(s.moments[i] - e.moments[i])
-                k = int(np.argmax(dz))
-                note("moments", dz[k], cut=s.cut, n=lab, alpha=float(s.alphas[k]))
-            ss = dict(zip(s.charges.tolist(), s.sector_entropy[i]))
-            for q, p, v in zip(e.charges.tolist(), e.probability, e.sector_entropy[i]):
-                if p <= rare:
-                    continue
-                mine = ss.get(q, math.nan)
-                if not np.isfinite(mine):
-                    missing += i == 0
-                    continue
-                note("sector_entropy", abs(mine - v), cut=s.cut, charge=charge_value(q), n=lab)
-    return {"max_deviation": worst, "missing_sectors": int(missing)}
-
-
-def exact_tables(exact: list[CutResolved]) -> dict[str, Table]:
-    """exact_entropies and exact_sectors tables, with the columns of entropies.csv and sectors.csv."""
-    labels = [renyi_label(n) for n in exact[0].renyi] if exact else []
-    ent_cols = ["cut"] + [f"S_{x}" for x in labels] + ["charge_mean", "charge_var", "S_number", "S_config",
-                                                       "charge_k3", "charge_k4"]
-    ent_rows, sec_rows = [], []
-    for r in exact:
-        ent_rows.append([r.cut] + [float(v) for v in r.entropy]
-                        + [r.cumulant(1), r.cumulant(2), r.number_entropy, r.config_entropy,
-                           r.cumulant(3), r.cumulant(4)])
-        for s, q in enumerate(r.charges):
-            count = float(r.counts[s])
-            sec_rows.append([r.cut, charge_value(q), float(r.probability[s])]
-                            + [float(r.sector_entropy[i][s]) + 0.0 for i in range(len(labels))]
-                            + [int(count) if count < 2.0**53 else count])
-    return {
-        EXACT_ENTROPIES: Table(ent_cols, ent_rows),
-        EXACT_SECTORS: Table(["cut", "charge", "probability"] + [f"S_{x}" for x in labels] + ["count"],
-                             sec_rows),
-    }

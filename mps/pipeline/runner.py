@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 
 from mps import __version__
+from mps.analysis.correlations import local_expectations
 from mps.chain.mpo import Mpo, OperatorError, build_mpo
 from mps.chain.state import product_state, random_state
 from mps.pipeline.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
@@ -188,6 +189,14 @@ def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: SectorSweeper, se
         "max_bond": max(search.state.bond_dims), "truncation": hist[-1].truncation if hist else 0.0,
         "seconds": seconds, "version": __version__,
     }
+    space = cfg.model.space()
+    if space.cutoff is not None:
+        top = local_expectations(search.state, np.diag(space.cutoff[mpo.basis_order]))
+        summary["cutoff_weight"] = float(np.max(top))
+        summary["cutoff_weight_site"] = int(np.argmax(top))
+        if summary["cutoff_weight"] > 1e-4:   # threshold: common practice, not a derived bound
+            show.say(f"warning: the occupation cutoff holds weight {summary['cutoff_weight']:.1e} (site "
+                     f"{summary['cutoff_weight_site']}); raise model.nmax for results independent of it")
     _write_analysis(directory, cfg, search.state, summary)
     write_json(directory / SUMMARY, summary)
     show.say(f"E = {energy:.12f} ({energy / cfg.model.sites:.12f} per site), variance {variance:.2e}, "

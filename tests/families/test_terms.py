@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import numpy as np
 import pytest
 
@@ -77,6 +79,15 @@ def test_place_refuses(text, sites, match):
     space = FERMION if "c_" in text else SPIN
     with pytest.raises(TermError, match=match):
         place(text, 1.0, space, sites)
+
+
+def test_adjoint_without_a_table_of_names():
+    # A site built by hand without ``adjoints``: the conjugate is found by its matrix.
+    bare = dataclasses.replace(SPIN, adjoints={})
+    assert adjoint(((0, "S^+"), (1, "S^z")), bare) == ((1, "S^z"), (0, "S^-"))
+    lonely = dataclasses.replace(SPIN, ops={"S^+": SPIN.ops["S^+"]}, adjoints={})
+    with pytest.raises(TermError, match="conjugate of 'S\\^\\+'"):
+        adjoint(((0, "S^+"),), lonely)
 
 
 def test_product_charge():
