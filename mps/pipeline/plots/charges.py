@@ -54,9 +54,11 @@ def draw_variance_by_charge(run: RunFiles, path: Path) -> Path | None:
             ax.plot(xs, smooth, color="0.2", **FIT_STYLE,
                     label=rf"$K_{{{name}}} = {entry['value']:.3f}$ (window {fit['window'][0]}..{fit['window'][1]})")
             if fit.get("alternating") is not None and fit.get("exponent") is not None:
+                lo, hi = fit["window"]    # the parity term only over the fitted cuts: it blows up below them
+                xe = np.linspace(np.log(chord_length(min(lo, L - hi), L)), np.nanmax(x), 100)
                 for sign in (1.0, -1.0):   # even-l and odd-l branches of the open-chain parity term
-                    ax.plot(xs, smooth + sign * fit["alternating"] * np.exp(-fit["exponent"] * xs), color="0.2",
-                            ls=":", lw=0.9)
+                    ax.plot(xe, entry["value"] * entry["slope"] * xe + fit["const"]
+                            + sign * fit["alternating"] * np.exp(-fit["exponent"] * xe), color="0.2", ls=":", lw=0.9)
         elif entry.get("regime") == "gapped":
             ax.plot([], [], " ", label=rf"gapped: $\xi = {entry['correlation_length']:.2f}$ sites, no $K$")
         tex = CHARGE_TEX.get(name, name)
