@@ -222,20 +222,20 @@ def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine
     settings = ComparisonSettings(window=cfg.analysis.fit_window, correlations=cfg.analysis.correlations)
     report = write_comparison(directory, cfg, state, settings)
     c = (report.get("central_charge") or {}).get("value")
-    k = (report.get("luttinger") or {}).get("value")
+    by_charge = report.get("luttinger_by_charge") or {}
+    k = None if by_charge else (report.get("luttinger") or {}).get("value")   # several charges: K per charge
     xi = (report.get("correlation_length") or {}).get("xi")
-    line = "fits: " + ", ".join(f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k))
-                                if value is not None)
+    parts = [f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k)) if value is not None]
     gapped = (report.get("regime") or {}).get("verdict") == "gapped"
-    if gapped:
-        line = report["regime"]["reason"]
-    for name, entry in (report.get("luttinger_by_charge") or {}).items():
-        line += (f", K_{name} = {entry['value']:.4f}" if entry.get("value") is not None
-                 else f", {name} gapped (xi = {entry['correlation_length']:.3g})" if entry.get("regime") == "gapped"
-                 else "")
+    for name, entry in by_charge.items():
+        if entry.get("value") is not None:
+            parts.append(f"K_{name} = {entry['value']:.4f}")
+        elif entry.get("regime") == "gapped":
+            parts.append(f"{name} gapped (xi = {entry['correlation_length']:.3g})")
     if report.get("correlation_length") and not gapped:
-        line += (f", correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
-                 else ", no exponential decay of charge correlations")
+        parts.append(f"correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
+                     else "no exponential decay of charge correlations")
+    line = report["regime"]["reason"] if gapped else "fits: " + (", ".join(parts) or "none")
     exact = report.get("exact") or {}
     dev = (exact.get("max_deviation") or {}).get("probability") if isinstance(exact, dict) else None
     if isinstance(dev, dict) and dev.get("value") is not None:
