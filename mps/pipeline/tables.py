@@ -79,7 +79,7 @@ def entanglement_tables(state: ChainState, units: tuple[float, ...], analysis: A
     Resolved by one charge, every column refers to it. Resolved jointly (``analysis.resolve:
     joint`` with several charges), sectors.csv has one charge column per charge
     (``charge_<name>``) and S_number, S_config are those of the joint distribution, while the
-    cumulant columns and moments.csv refer to the first charge. Chains with several charges also
+    cumulant columns, moments.csv and spectrum.csv refer to the first charge. Chains with several charges also
     get ``charge_mean_<name>`` and ``charge_var_<name>`` for every charge.
     """
     wanted = tuple(analysis.renyi if renyi is None else renyi)
