@@ -7,7 +7,9 @@ single-particle matrix, default charge sector). Adding a family is one module th
 ``default_charge(sites, opts)``, plus one ``register`` line at the bottom of this file. Optional
 module attributes: ``OPTIONS`` (further ``model:`` keys with their defaults, e.g. ``nmax``),
 ``VARIANCE_SLOPES`` (charge name -> coefficient of K log l_eff in the block charge variance, for
-the Luttinger-parameter fits) and ``FREE_COUPLINGS`` (coupling names chosen by the user).
+the Luttinger-parameter fits), ``FREE_COUPLINGS`` (coupling names chosen by the user) and
+``SPECIES`` (when ``single_particle`` describes several independent fermion species: the integer
+charge vector one particle of each species carries).
 
 Examples
 --------
@@ -65,6 +67,9 @@ class ModelFamily:
     make_terms : (sites, couplings, opts) -> list[Term], couplings complete (defaults filled).
     make_single_particle : (sites, couplings, opts) -> (h, unit, offset_per_site) or None.
     make_default_charge : (sites, opts) -> {charge name: physical value}.
+    free_couplings : the config names the couplings (written chains).
+    species : with a single-particle matrix, the integer charge vector of one particle of each
+        independent species (None for one species).
     """
 
     name: str
@@ -80,6 +85,7 @@ class ModelFamily:
     options: dict[str, Any] = field(default_factory=dict, hash=False)
     variance_slopes: dict[str, float] = field(default_factory=dict, hash=False)
     free_couplings: bool = False
+    species: tuple[tuple[int, ...], ...] | None = None
 
     @classmethod
     def from_module(cls, module: ModuleType) -> ModelFamily:
@@ -96,6 +102,7 @@ class ModelFamily:
             options=dict(getattr(module, "OPTIONS", {})),
             variance_slopes=dict(getattr(module, "VARIANCE_SLOPES", {})),
             free_couplings=bool(getattr(module, "FREE_COUPLINGS", False)),
+            species=getattr(module, "SPECIES", None),
         )
 
     def resolve_couplings(self, couplings: Mapping[str, float] | None = None) -> dict[str, float]:

@@ -14,6 +14,8 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 
+import numpy as np
+
 from models.bases import spinful_fermion
 from models.patterns import dimerised, staggered
 from models.terms import place
@@ -30,6 +32,8 @@ COUPLINGS = {"t": 1.0, "U": 4.0, "mu": 0.0, "mu_stag": 0.0, "dimer": 0.0}
 # (spin-charge separation with N = N_up + N_dn, S^z = (N_up - N_dn)/2; Giamarchi, Quantum
 # Physics in One Dimension (2004), from memory, for the K_c, K_s convention).
 VARIANCE_SLOPES = {"N": 1.0 / math.pi**2, "Sz": 1.0 / (4.0 * math.pi**2)}
+# One up particle carries (N, 2 S^z) = (1, 1), one down particle (1, -1).
+SPECIES = ((1, 1), (1, -1))
 
 
 def space(opts=None) -> LocalSpace:
@@ -47,9 +51,19 @@ def terms(sites: int, c: Mapping[str, float], opts=None) -> list[Term]:
             + place("n(j)", -staggered(c["mu"], c["mu_stag"], sites), s, sites))
 
 
-def single_particle(sites: int, c: Mapping[str, float], opts=None) -> None:
-    """None: the exact comparison handles one fermion species (U = 0 splits into two; see the tests)."""
-    return None
+def single_particle(sites: int, c: Mapping[str, float], opts=None) -> tuple[np.ndarray, float, float] | None:
+    """At U = 0, the hopping matrix shared by both spin species (see ``SPECIES``), else None.
+
+    h_{j,j+1} = h_{j+1,j} = -t_j, h_jj = -(mu + mu_stag (-1)^j): each species is a free chain and
+    the block's state is the product of the two (exact).
+    """
+    if c["U"] != 0.0:
+        return None
+    hop = dimerised(c["t"], c["dimer"], sites - 1)
+    h = np.diag(-staggered(c["mu"], c["mu_stag"], sites)) + 0.0
+    idx = np.arange(sites - 1)
+    h[idx, idx + 1] = h[idx + 1, idx] = -hop
+    return h, 1.0, 0.0
 
 
 def default_charge(sites: int, opts=None) -> dict[str, float]:

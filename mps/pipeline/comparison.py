@@ -61,7 +61,7 @@ from mps.analysis.entanglement import charge_moments
 from mps.analysis.resolved import CutResolved
 from mps.chain.state import ChainState
 from mps.pipeline.errors import InputError
-from mps.pipeline.exact_check import EXACT_ENTROPIES, EXACT_SECTORS, deviations, exact_tables
+from mps.pipeline.exact_check import EXACT_ENTROPIES, EXACT_SECTORS, deviations, exact_records, exact_tables
 from mps.pipeline.rundir import write_json
 from mps.pipeline.schema import RunConfig
 from mps.pipeline.tables import Table, charge_value, renyi_label, resolve_state, write_tables
@@ -75,7 +75,6 @@ from mps.theory.fieldtheory import (
     luttinger_bethe_ansatz,
     resolved_entropy_leading,
 )
-from mps.theory.freefermions import charge_correlations, correlation_matrix, resolve_all_cuts
 
 COMPARISON = "comparison.json"
 
@@ -366,33 +365,26 @@ def _correlation_length(corr: np.ndarray, window) -> dict:
 def _exact(cfg: RunConfig, records: list[CutResolved], corr: np.ndarray | None,
            settings: ComparisonSettings) -> tuple[dict, dict[str, Table]] | None:
     """Exact lattice answer of a quadratic chain and the solver's largest deviations from it."""
-    fam = cfg.model.family_record()
-    sp = fam.single_particle(cfg.model.sites, cfg.model.couplings, cfg.model.options)
-    if sp is None:
-        return None
-    h, unit, offset = sp
-    component = _component(cfg)
-    total = cfg.model.charge[cfg.model.space().charge_names[component]]
-    n_particles = int(round((total - offset * cfg.model.sites) / unit))
     try:
-        C = correlation_matrix(h, n_particles)
+        found = exact_records(cfg, [r.cut for r in records], records[0].renyi, records[0].alphas, _component(cfg))
     except ValueError as exc:
         return {"error": str(exc)}, {}
-    renyi, alphas = records[0].renyi, records[0].alphas
-    exact = resolve_all_cuts(h, n_particles, [r.cut for r in records], renyi, alphas, unit, offset,
-                             cfg.analysis.weight_floor)
+    if found is None:
+        return None
+    exact, exact_corr, n_particles = found
     L = cfg.model.sites
     window = settings.window or default_window(L)
     cuts, _, variance = _series(exact)
+    slope = cfg.model.family_record().variance_slope(cfg.model.space().charge_names[_component(cfg)])
     report = {
         "n_particles": n_particles, "rare_sector": settings.rare_sector,
         **deviations(records, exact, settings.rare_sector),
         "central_charge": _central_charges(exact, L, window),
-        "luttinger": _wrap(_fit_or_error(fit_luttinger, cuts, variance, L, window)),
+        "luttinger": _wrap(_fit_or_error(fit_luttinger, cuts, variance, L, window, slope=slope)),
         "tables": [f"{EXACT_ENTROPIES}.csv", f"{EXACT_SECTORS}.csv"],
     }
     if corr is not None:
-        d = np.abs(corr - unit**2 * charge_correlations(C))
+        d = np.abs(corr - exact_corr)
         i, j = np.unravel_index(int(np.argmax(d)), d.shape)
         report["max_deviation"]["charge_correlations"] = {"value": float(d[i, j]), "sites": [int(i), int(j)]}
     return report, exact_tables(exact)

@@ -12,10 +12,50 @@ import math
 import numpy as np
 
 from mps.analysis.resolved import CutResolved
+from mps.pipeline.schema import RunConfig
 from mps.pipeline.tables import Table, charge_value, renyi_label
+from mps.theory.freefermions import (
+    block_occupations,
+    charge_correlations,
+    correlation_matrix,
+    resolve_all_cuts,
+)
+from mps.theory.species import resolve_species_block, species_fillings
 
 EXACT_ENTROPIES = "exact_entropies"
 EXACT_SECTORS = "exact_sectors"
+
+
+def exact_records(cfg: RunConfig, cuts: list[int], renyi, alphas, component: int
+                  ) -> tuple[list[CutResolved], np.ndarray, int | list[int]] | None:
+    """Exact records of the cuts, exact connected correlations of the resolved charge density and
+    the particle number(s), for a chain the family declares quadratic; None otherwise.
+
+    One species: H = sum h_ij c+_i c_j with q = unit N_A + offset l. Several independent species
+    (family attribute ``SPECIES``, e.g. the two spin species of the Hubbard chain at U = 0): each
+    is filled from the target charge, and the density correlations of charge c add up as
+    sum_s (u_c a_{s,c})^2 <n_i n_j>_s^conn (independent species). Raises ValueError when the free
+    ground state is degenerate.
+    """
+    fam = cfg.model.family_record()
+    sp = fam.single_particle(cfg.model.sites, cfg.model.couplings, cfg.model.options)
+    if sp is None:
+        return None
+    h, unit, offset = sp
+    floor = cfg.analysis.weight_floor
+    if fam.species:
+        units = cfg.model.space().charge_units
+        fillings = species_fillings(fam.species, cfg.model.integer_charge())
+        Cs = [correlation_matrix(h, n) for n in fillings]
+        exact = [resolve_species_block([block_occupations(C, cut) for C in Cs], fam.species, cut, renyi, alphas,
+                                       units, component, floor) for cut in cuts]
+        corr = sum((units[component] * a[component]) ** 2 * charge_correlations(C) for a, C in zip(fam.species, Cs))
+        return exact, corr, fillings
+    total = cfg.model.charge[cfg.model.space().charge_names[component]]
+    n_particles = int(round((total - offset * cfg.model.sites) / unit))
+    C = correlation_matrix(h, n_particles)
+    exact = resolve_all_cuts(h, n_particles, cuts, renyi, alphas, unit, offset, floor)
+    return exact, unit**2 * charge_correlations(C), n_particles
 
 
 def deviations(solver: list[CutResolved], exact: list[CutResolved], rare: float = 1e-6) -> dict:

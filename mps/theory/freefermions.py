@@ -82,7 +82,7 @@ def charge_correlations(C: np.ndarray) -> np.ndarray:
     return np.diag(np.real(np.diag(C))) - np.abs(C) ** 2
 
 
-def _replica_weights(nu: np.ndarray, n: float) -> tuple[np.ndarray, np.ndarray, float]:
+def replica_weights(nu: np.ndarray, n: float) -> tuple[np.ndarray, np.ndarray, float]:
     """Normalised factor (w0, w1) = ((1-nu)^n, nu^n) / (nu^n + (1-nu)^n) and sum_k log of the norm.
 
     For n = inf the weights are the limit (1, 0), (0, 1) or (1/2, 1/2) as nu <, >, = 1/2, and the
@@ -97,7 +97,7 @@ def _replica_weights(nu: np.ndarray, n: float) -> tuple[np.ndarray, np.ndarray, 
     return np.exp(lb - lz), np.exp(la - lz), float(np.sum(lz))
 
 
-def _log_sector_sums(w0: np.ndarray, w1: np.ndarray) -> np.ndarray:
+def log_sector_sums(w0: np.ndarray, w1: np.ndarray) -> np.ndarray:
     """log of the coefficients of prod_k (w0_k + w1_k x), accumulated in the log domain.
 
     The log domain keeps sectors whose weight is far below the largest one (large n) exact.
@@ -112,7 +112,7 @@ def _log_sector_sums(w0: np.ndarray, w1: np.ndarray) -> np.ndarray:
     return out
 
 
-def _dual_sector_sums(nu: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def dual_sector_sums(nu: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Coefficients P(N) of prod_k [(1-nu_k)^n + nu_k^n x] at n = 1 and D(N) = dP/dn at n = 1.
 
     Each factor is carried as a dual number a + epsilon a log a (d/dn a^n = a^n log a), so
@@ -132,7 +132,7 @@ def _dual_sector_sums(nu: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return P, D
 
 
-def _log_largest_level(nu: np.ndarray) -> np.ndarray:
+def log_largest_level(nu: np.ndarray) -> np.ndarray:
     """log of the largest many-body level in each sector N = 0..M.
 
     The largest product with N occupied modes occupies the N largest nu_k:
@@ -145,7 +145,7 @@ def _log_largest_level(nu: np.ndarray) -> np.ndarray:
     return head + tail
 
 
-def _binomial(m: int, k: np.ndarray) -> np.ndarray:
+def level_counts(m: int, k: np.ndarray) -> np.ndarray:
     """binomial(m, k) as floats: rounded to the exact integer below 2^53, inf on overflow."""
     with np.errstate(over="ignore"):
         c = np.exp(gammaln(m + 1) - gammaln(k + 1) - gammaln(m - k + 1))
@@ -209,14 +209,14 @@ def resolve_block(
 
     k1 = int(np.sum(nu == 1.0))
     m = int(np.sum((nu > 0) & (nu < 1)))
-    prob, dlog = _dual_sector_sums(nu)
+    prob, dlog = dual_sector_sums(nu)
     sectors = np.arange(k1, k1 + m + 1)
     sectors = sectors[prob[sectors] > 0]
     p = prob[sectors]
     with np.errstate(divide="ignore"):
         logp = np.log(p)
     charges = unit * sectors + offset
-    counts = _binomial(m, sectors - k1)
+    counts = level_counts(m, sectors - k1)
     keep = p >= floor
 
     entropy = np.empty(len(ns))
@@ -224,16 +224,16 @@ def resolve_block(
     moments = np.empty((len(ns), alphas.size), dtype=complex)
     phase = np.exp(1j * alphas * unit)
     for r, n in enumerate(ns):
-        w0, w1, log_norm = _replica_weights(nu, n)
+        w0, w1, log_norm = replica_weights(nu, n)
         if n == 1.0:
             entropy[r] = 0.0 - float(np.sum(xlogy(nu, nu) + xlogy(1 - nu, 1 - nu)))
             values = logp - dlog[sectors] / np.where(keep, p, 1.0)
         elif np.isinf(n):
             entropy[r] = 0.0 - log_norm
-            values = logp - _log_largest_level(nu)[sectors]
+            values = logp - log_largest_level(nu)[sectors]
         else:
             entropy[r] = log_norm / (1.0 - n)
-            values = (log_norm + _log_sector_sums(w0, w1)[sectors] - n * logp) / (1.0 - n)
+            values = (log_norm + log_sector_sums(w0, w1)[sectors] - n * logp) / (1.0 - n)
         sector_entropy[r, keep] = values[keep]
         with np.errstate(divide="ignore"):
             logs = np.log(w0[None, :] + w1[None, :] * phase[:, None]).sum(axis=1)

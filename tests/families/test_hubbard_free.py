@@ -17,6 +17,8 @@ import numpy as np
 import pytest
 
 from mps.analysis.entanglement import default_alphas, resolve_cut, resolve_cut_joint
+from mps.pipeline.comparison import compare_run
+from mps.pipeline.config import parse_config
 from mps.solver.sweep import Stage, SweepSettings
 from mps.theory.freefermions import correlation_matrix
 
@@ -93,3 +95,23 @@ def test_resolved_by_n_by_sz_and_jointly_match_free_fermions(solved, cut):
             if p > 1e-5:
                 for r, n in enumerate(RENYI):
                     assert math.isclose(rec.sector_entropy[r, i], s[r], abs_tol=1e-7), (name, cut, q, n)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("resolve", ["N", "Sz"])
+def test_comparison_stage_checks_the_two_species_exactly(solved, resolve):
+    # The comparison stage's own exact answer for a quadratic two-species chain (sector sums
+    # combined species by species, mps.theory.species) must find the solver within the same
+    # tolerances as the enumerated levels above, on every cut.
+    search, _ = solved
+    cfg = parse_config({"model": {"family": "hubbard", "sites": L, "couplings": COUPLINGS,
+                                  "charge": {"N": 2 * FILLING, "Sz": 0}},
+                        "analysis": {"resolve": resolve, "renyi": list(RENYI)}})
+    exact = compare_run(cfg, search.state)["exact"]
+    assert exact["n_particles"] == [FILLING, FILLING] and exact["missing_sectors"] == 0
+    dev = exact["max_deviation"]
+    assert dev["probability"]["value"] < 1e-10
+    assert dev["entropy"]["value"] < 1e-9
+    assert dev["moments"]["value"] < 1e-10
+    assert dev["sector_entropy"]["value"] < 1e-6       # sectors down to p = 1e-6 (rare_sector)
+    assert dev["charge_correlations"]["value"] < 1e-7
