@@ -24,7 +24,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 
 import numpy as np
-from scipy.special import logsumexp, xlogy
+from scipy.special import xlogy
 
 from mps.analysis.resolved import CutResolved
 from mps.theory.freefermions import (
@@ -49,15 +49,27 @@ def species_fillings(per_particle: Sequence[Sequence[int]], target: Sequence[int
     return [int(round(x)) for x in n]
 
 
-def _grid_sum(log_a: np.ndarray, log_b: np.ndarray, labels: np.ndarray, keys: np.ndarray) -> np.ndarray:
-    """log sum over the grid cells of each key of exp(log_a[i] + log_b[j]) (labels[i, j] -> key)."""
-    total = log_a[:, None] + log_b[None, :]
-    out = np.full(keys.size, -np.inf)
-    for i, key in enumerate(keys):
-        cells = total[labels == key]
-        if cells.size:
-            out[i] = logsumexp(cells)
-    return out
+class _Grid:
+    """Cells (N_1, N_2) of the two species grouped by their charge (one pass, reused by every sum)."""
+
+    def __init__(self, labels: np.ndarray):
+        self.keys, inverse = np.unique(labels, return_inverse=True)
+        self.inverse = inverse.ravel()
+
+    def total(self, values: np.ndarray) -> np.ndarray:
+        return np.bincount(self.inverse, weights=values.ravel(), minlength=self.keys.size)
+
+    def largest(self, values: np.ndarray) -> np.ndarray:
+        out = np.full(self.keys.size, -np.inf)
+        np.maximum.at(out, self.inverse, values.ravel())
+        return out
+
+    def log_total(self, log_values: np.ndarray) -> np.ndarray:
+        """log sum exp over each group, shifted by the group's largest term (no under- or overflow)."""
+        top = self.largest(log_values)
+        shift = np.where(np.isfinite(top), top, 0.0)
+        with np.errstate(divide="ignore"):
+            return shift + np.log(self.total(np.exp(log_values.ravel() - shift[self.inverse])))
 
 
 def resolve_species_block(
@@ -85,45 +97,36 @@ def resolve_species_block(
     nus = [np.clip(np.asarray(nu, dtype=float), 0.0, 1.0) for nu in nus]
     a = [int(np.asarray(pp)[component]) for pp in per_particle]
     u = float(units[component])
-    grid = np.add.outer(a[0] * np.arange(nus[0].size + 1), a[1] * np.arange(nus[1].size + 1))
+    grid = _Grid(np.add.outer(a[0] * np.arange(nus[0].size + 1), a[1] * np.arange(nus[1].size + 1)))
     sums = [dual_sector_sums(nu) for nu in nus]                      # (p(N), D(N)) per species
     with np.errstate(divide="ignore"):
         logp = [np.log(p) for p, _ in sums]
-    keys = np.unique(grid[np.isfinite(logp[0])[:, None] & np.isfinite(logp[1])[None, :]])
-    log_prob = _grid_sum(logp[0], logp[1], grid, keys)
-    keep_sector = np.isfinite(log_prob)
-    keys, log_prob = keys[keep_sector], log_prob[keep_sector]
+    log_prob = grid.log_total(logp[0][:, None] + logp[1][None, :])
+    present = np.isfinite(log_prob)
+    keys, log_prob = grid.keys[present], log_prob[present]
     p = np.exp(log_prob)
     keep = p >= floor
-
-    counts = np.zeros(keys.size)
-    for s0 in range(nus[0].size + 1):
-        for s1 in range(nus[1].size + 1):
-            c = [_level_count(nus[k], (s0, s1)[k]) for k in range(2)]
-            if c[0] and c[1]:
-                counts[np.searchsorted(keys, grid[s0, s1])] += c[0] * c[1]
+    counts = grid.total(np.outer(*(_level_counts(nu) for nu in nus)))[present]
 
     entropy = np.zeros(len(ns))
     sector_entropy = np.full((len(ns), keys.size), np.nan)
     moments = np.ones((len(ns), alphas.size), dtype=complex)
     for r, n in enumerate(ns):
-        values = np.full(keys.size, np.nan)
         parts = [replica_weights(nu, n) for nu in nus]
         if n == 1.0:
             entropy[r] = float(sum(-np.sum(xlogy(nu, nu) + xlogy(1 - nu, 1 - nu)) for nu in nus))
             (p0, d0), (p1, d1) = sums
             dgrid = d0[:, None] * p1[None, :] + p0[:, None] * d1[None, :]
-            d = np.array([dgrid[grid == key].sum() for key in keys])
+            d = grid.total(dgrid)[present]
             values = log_prob - d / np.where(keep, p, 1.0)
         elif np.isinf(n):
             entropy[r] = -sum(lnorm for _, _, lnorm in parts)
             top = [log_largest_level(nu) for nu in nus]
-            total = top[0][:, None] + top[1][None, :]
-            values = log_prob - np.array([total[grid == key].max() for key in keys])
+            values = log_prob - grid.largest(top[0][:, None] + top[1][None, :])[present]
         else:
             entropy[r] = sum(lnorm for _, _, lnorm in parts) / (1.0 - n)
             logz = [lnorm + log_sector_sums(w0, w1) for w0, w1, lnorm in parts]
-            values = (_grid_sum(logz[0], logz[1], grid, keys) - n * log_prob) / (1.0 - n)
+            values = (grid.log_total(logz[0][:, None] + logz[1][None, :])[present] - n * log_prob) / (1.0 - n)
         sector_entropy[r, keep] = values[keep]
         for (w0, w1, _), charge in zip(parts, a):
             phase = np.exp(1j * alphas * u * charge)
@@ -133,8 +136,12 @@ def resolve_species_block(
                        sector_entropy=sector_entropy, alphas=alphas, moments=moments, floor=floor)
 
 
-def _level_count(nu: np.ndarray, filled: int) -> float:
-    """Number of non-zero levels with ``filled`` particles: binomial(m, filled - k1)."""
+def _level_counts(nu: np.ndarray) -> np.ndarray:
+    """Number of non-zero levels with N = 0..cut particles: binomial(m, N - k1), zero outside."""
     k1 = int(np.sum(nu == 1.0))
     m = int(np.sum((nu > 0) & (nu < 1)))
-    return float(level_counts(m, np.array(filled - k1))) if 0 <= filled - k1 <= m else 0.0
+    filled = np.arange(nu.size + 1)
+    inside = (filled >= k1) & (filled <= k1 + m)
+    out = np.zeros(nu.size + 1)
+    out[inside] = level_counts(m, filled[inside] - k1)
+    return out
