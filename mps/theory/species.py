@@ -102,7 +102,7 @@ def resolve_species_block(
     with np.errstate(divide="ignore"):
         logp = [np.log(p) for p, _ in sums]
     log_prob = grid.log_total(logp[0][:, None] + logp[1][None, :])
-    present = np.isfinite(log_prob)
+    present = np.exp(log_prob) > 0              # sectors whose p(q) is representable, as for one species
     keys, log_prob = grid.keys[present], log_prob[present]
     p = np.exp(log_prob)
     keep = p >= floor
