@@ -9,7 +9,9 @@ module attributes: ``OPTIONS`` (further ``model:`` keys with their defaults, e.g
 ``VARIANCE_SLOPES`` (charge name -> coefficient of K log l_eff in the block charge variance, for
 the Luttinger-parameter fits), ``FREE_COUPLINGS`` (coupling names chosen by the user) and
 ``SPECIES`` (when ``single_particle`` describes several independent fermion species: the integer
-charge vector one particle of each species carries).
+charge vector one particle of each species carries) and ``scalar_masses(sites, couplings, opts)``
+(the per-site masses m_j of a quadratic complex-scalar chain, for the exact free-boson engine;
+None when the chain is not quadratic).
 
 Examples
 --------
@@ -31,11 +33,17 @@ from typing import Any
 
 import numpy as np
 
-from models import bosons, fermions, hubbard, spin1, written, xxz
+from models import bosons, fermions, hubbard, scalar, spin1, written, xxz
 from mps.chain.lattice import LocalSpace, Term
 
 SingleParticle = tuple[np.ndarray, float, float]
 Options = Mapping[str, Any]
+
+
+def _no_scalar_masses(sites: int, couplings: Mapping[str, float], opts: Options) -> None:
+    """Default hook: the family is not a quadratic complex-scalar chain."""
+    return None
+
 
 # sigma^2 = (K/(2 pi^2)) log l_eff for one charge of a one-component Luttinger liquid, one
 # entangling point (DESIGN.md section 5).
@@ -70,6 +78,8 @@ class ModelFamily:
     free_couplings : the config names the couplings (written chains).
     species : with a single-particle matrix, the integer charge vector of one particle of each
         independent species (None for one species).
+    make_scalar_masses : (sites, couplings, opts) -> per-site masses m_j (length L) of a quadratic
+        complex-scalar chain, or None (the default for every other family).
     """
 
     name: str
@@ -86,6 +96,9 @@ class ModelFamily:
     variance_slopes: dict[str, float] = field(default_factory=dict, hash=False)
     free_couplings: bool = False
     species: tuple[tuple[int, ...], ...] | None = None
+    make_scalar_masses: Callable[[int, Mapping[str, float], Options], np.ndarray | None] = field(
+        default=_no_scalar_masses, repr=False
+    )
 
     @classmethod
     def from_module(cls, module: ModuleType) -> ModelFamily:
@@ -103,6 +116,7 @@ class ModelFamily:
             variance_slopes=dict(getattr(module, "VARIANCE_SLOPES", {})),
             free_couplings=bool(getattr(module, "FREE_COUPLINGS", False)),
             species=getattr(module, "SPECIES", None),
+            make_scalar_masses=getattr(module, "scalar_masses", _no_scalar_masses),
         )
 
     def resolve_couplings(self, couplings: Mapping[str, float] | None = None) -> dict[str, float]:
@@ -152,6 +166,16 @@ class ModelFamily:
         return self.make_single_particle(sites, self.resolve_couplings(couplings),
                                          self.resolve_options(options))
 
+    def scalar_masses(
+        self, sites: int, couplings: Mapping[str, float] | None = None, options: Options | None = None
+    ) -> np.ndarray | None:
+        """Per-site masses m_j (length ``sites``) when the chain is a quadratic complex scalar, else None.
+
+        H = sum_j [pi+_j pi_j + m_j^2 phi+_j phi_j] + sum over bonds incl. the Dirichlet ends of
+        |phi_{j+1} - phi_j|^2 (DESIGN.md section 3), so V = diag(m_j^2 + 2) - shift - shift^T.
+        """
+        return self.make_scalar_masses(sites, self.resolve_couplings(couplings), self.resolve_options(options))
+
     def default_charge(self, sites: int, options: Options | None = None) -> dict[str, float]:
         """Charge sector (physical values) used when the config does not name one."""
         return self.make_default_charge(sites, self.resolve_options(options))
@@ -190,5 +214,5 @@ def family_names() -> list[str]:
     return sorted(_REGISTRY)
 
 
-for _module in (xxz, fermions, hubbard, bosons, spin1, written):
+for _module in (xxz, fermions, hubbard, bosons, spin1, scalar, written):
     register(ModelFamily.from_module(_module))
