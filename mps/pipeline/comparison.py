@@ -31,12 +31,22 @@ Keys of comparison.json (forms and sources in :mod:`mps.theory.fieldtheory`):
   ``value`` (K of that charge, null when the charge is gapped), ``slope`` (s in sigma^2 = K s log
   l_eff), ``fit``, ``regime`` (critical, gapped or unchecked), ``correlation_length`` and a
   ``reason`` when K is withheld (see :func:`luttinger_by_charge`);
-- ``regime``: ``verdict`` (gapped, critical or unchecked), ``xi``, ``reason``; on a gapped chain the
-  headline ``central_charge.value`` and ``luttinger.value`` are null (see :func:`regime`);
+- ``method``: ``sweeps`` or ``exact`` (``solver.method``);
+- ``regime``: ``verdict`` (critical, gapped or undecided), ``xi``, ``reason`` (one line),
+  ``reasons`` and ``signals`` (entropy: grows, saturates or unclear; correlations: exponential,
+  long, none or unmeasured); see :mod:`mps.pipeline.regime`. Outside the critical regime, and for a
+  non-positive fit, the headline ``central_charge.value`` and ``luttinger.value`` are null with a
+  ``reason`` (the fits stay under ``by_renyi`` and ``fit`` for reference);
+- ``massive``: null unless the regime is gapped; then the massive-field comparison of
+  :mod:`mps.pipeline.massive_report` (xi, the flux dependence of log Z_n(alpha) at the central cut
+  against the Dirac and the complex-scalar forms, equipartition breaking, the free prediction at
+  the same xi);
 - ``correlation_length``: the result of :func:`mps.analysis.correlations.correlation_length` on the
   connected charge-charge correlations (xi, null when the decay is not exponential, as on a
   critical chain; amplitude, residual, window, ...) plus ``window_start_over_xi`` (the massive
   forms need l >> xi); null when ``analysis.correlations`` is false;
+- ``sum_rules``: the largest violation over all cuts of sum_q p(q) = 1, of S_1 = S_number +
+  S_config and, for the complex scalar at Q = 0, of p(q) = p(-q) (:mod:`mps.pipeline.sum_rules`);
 - ``exact``: null unless the chain is quadratic; then ``n_particles``, ``rare_sector``,
   ``max_deviation`` {probability, sector_entropy, entropy, moments, charge_correlations}, each
   {value, cut, ...where}, ``missing_sectors`` (sectors with exact p above ``rare_sector`` that the
@@ -62,8 +72,11 @@ from mps.analysis.resolved import CutResolved
 from mps.chain.state import ChainState
 from mps.pipeline.errors import InputError
 from mps.pipeline.exact_check import EXACT_ENTROPIES, EXACT_SECTORS, deviations, exact_records, exact_tables
+from mps.pipeline.massive_report import massive_section
+from mps.pipeline.regime import decide, headline
 from mps.pipeline.rundir import write_json
 from mps.pipeline.schema import RunConfig
+from mps.pipeline.sum_rules import sum_rules
 from mps.pipeline.tables import Table, charge_value, renyi_label, resolve_state, write_tables
 from mps.theory.fieldtheory import (
     default_window,
@@ -133,48 +146,70 @@ def build_comparison(cfg: RunConfig, state: ChainState,
     """
     L = cfg.model.sites
     space = cfg.model.space()
-    renyi = tuple(cfg.analysis.renyi) if 1.0 in cfg.analysis.renyi else (1.0,) + tuple(cfg.analysis.renyi)
+    renyi = comparison_renyi(cfg)
     cuts = [c for c in range(1, L) if state.spectra[c] is not None]
     if not cuts:
         raise InputError("the stored state holds no Schmidt values (run at least one sweep)")
     records = resolve_state(state, space.charge_units, cfg.analysis, space.charge_names, renyi, cuts)
-    window = settings.window or default_window(L)
-    mid = min(cuts, key=lambda c: abs(c - L // 2))
-    mid_rec = records[cuts.index(mid)]
-    report = {
-        "name": cfg.name, "family": cfg.model.family, "sites": L,
-        "couplings": dict(cfg.model.couplings), "charge": dict(cfg.model.charge),
-        "renyi": [renyi_label(n) for n in renyi], "version": __version__, "window": list(window),
-        "central_charge": _central_charges(records, L, window),
-        "luttinger": _luttinger(cfg, records, window),
-        "luttinger_by_charge": None,
-        "equipartition": _equipartition(records, mid_rec, settings.threshold),
-        "charged_moments": _moments(mid_rec, settings.alpha_max),
-        "correlation_length": None,
-        "regime": None,
-        "exact": None,
-    }
     component = _component(cfg)
     site_charge = state.tensors[0].legs[1].state_charges()[:, component] * space.charge_units[component]
     corr = _solver_correlations(state, site_charge) if settings.correlations else None
-    if corr is not None:
-        report["correlation_length"] = _correlation_length(corr, window)
-    report["regime"] = regime(report["correlation_length"], window)
+    by_charge = None
     if len(space.charge_names) > 1:
+        window = settings.window or default_window(L)
         by_charge = luttinger_by_charge(cfg, state, cuts, window, settings.correlations)
-        report["luttinger_by_charge"] = by_charge
-        resolved = by_charge[space.charge_names[_component(cfg)]]
+    return assemble(cfg, records, corr, settings, by_charge, check_exact=True)
+
+
+def comparison_renyi(cfg: RunConfig) -> tuple[float, ...]:
+    """The Renyi indices of the comparison: those of ``analysis.renyi`` with n = 1 added."""
+    return tuple(cfg.analysis.renyi) if 1.0 in cfg.analysis.renyi else (1.0,) + tuple(cfg.analysis.renyi)
+
+
+def assemble(cfg: RunConfig, records: list[CutResolved], corr: np.ndarray | None,
+             settings: ComparisonSettings, by_charge: dict | None = None, check_exact: bool = True
+             ) -> Comparison:
+    """The report from the records of consecutive cuts and the connected charge correlations (or None).
+
+    ``by_charge``: the per-charge Luttinger entries of a chain with several charges. ``check_exact``:
+    compare with the exact engine when the chain is quadratic (off for runs of the exact engine).
+    """
+    L = cfg.model.sites
+    window = settings.window or default_window(L)
+    mid_rec = min(records, key=lambda r: abs(r.cut - L // 2))
+    report = {
+        "name": cfg.name, "family": cfg.model.family, "sites": L, "method": cfg.solver.method,
+        "couplings": dict(cfg.model.couplings), "charge": dict(cfg.model.charge),
+        "renyi": [renyi_label(n) for n in records[0].renyi], "version": __version__, "window": list(window),
+        "central_charge": _central_charges(records, L, window),
+        "luttinger": _luttinger(cfg, records, window),
+        "luttinger_by_charge": by_charge,
+        "equipartition": _equipartition(records, mid_rec, settings.threshold),
+        "charged_moments": _moments(mid_rec, settings.alpha_max),
+        "correlation_length": None if corr is None else _correlation_length(corr, window),
+        "regime": None,
+        "massive": None,
+        "exact": None,
+        "sum_rules": sum_rules(records, cfg.model.family, sum(abs(v) for v in cfg.model.charge.values())),
+    }
+    entropy_fit = report["central_charge"]["by_renyi"]["1"]
+    report["regime"] = decide(entropy_fit, report["correlation_length"], window, L)
+    if by_charge is not None:
+        resolved = by_charge[cfg.model.space().charge_names[_component(cfg)]]
         if resolved["regime"] == "gapped":   # the headline K of the resolved charge follows its regime
             report["luttinger"].update(value=None, reason=resolved["reason"])
-        if any(e["regime"] != "gapped" for e in by_charge.values()):   # one gapless sector keeps log l
-            report["regime"] = {"verdict": "critical", "xi": report["regime"]["xi"],
-                                "reason": "gapless sector(s): " + ", ".join(
-                                    n for n, e in by_charge.items() if e["regime"] != "gapped")}
+        gapless = [n for n, e in by_charge.items() if e["regime"] != "gapped"]
+        if gapless and report["regime"]["verdict"] == "gapped":   # one gapless sector keeps log l
+            report["regime"] = {**report["regime"], "verdict": "critical",
+                                "reason": "critical: gapless sector(s) " + ", ".join(gapless)}
+    for key, name in (("central_charge", "c"), ("luttinger", "K")):
+        value, why = headline(report[key], name, report["regime"])
+        if why is not None and report[key].get("value") is not None:
+            report[key].update(value=None, reason=why)
     if report["regime"]["verdict"] == "gapped":
-        for key in ("central_charge", "luttinger"):
-            report[key].update(value=None, reason=report["regime"]["reason"])
+        report["massive"] = massive_section(cfg, mid_rec, records, report["regime"]["xi"], settings.alpha_max)
     tables: dict[str, Table] = {}
-    exact = _exact(cfg, records, corr, settings)
+    exact = _exact(cfg, records, corr, settings) if check_exact else None
     if exact is not None:
         report["exact"], tables = exact
     return Comparison(_plain(report), tables)
@@ -229,27 +264,6 @@ def _luttinger(cfg: RunConfig, records: list[CutResolved], window) -> dict:
     out["bethe_ansatz"] = known
     out["relative_difference"] = None if known is None or out["value"] is None else out["value"] / known - 1.0
     return out
-
-
-def regime(correlation: dict | None, window) -> dict:
-    """Whether the log-l forms apply: "gapped" when the charge correlations decay exponentially with
-    a correlation length below the smallest fitted block, "critical" when they do not decay
-    exponentially, "unchecked" without measured correlations.
-
-    Gapped chains obey an area law (the entropy saturates at blocks beyond xi; Murciano, Di Giulio
-    and Calabrese, JHEP 08 (2020) 073, replace log l by log xi), so a central charge or a
-    Luttinger parameter fitted to log l_eff would be meaningless there: the headline values are
-    withheld (the fits stay under ``by_renyi`` and ``fit`` for reference).
-    """
-    if correlation is None:
-        return {"verdict": "unchecked", "xi": None, "reason": "charge correlations not measured"}
-    xi = correlation.get("xi")
-    if xi is not None and math.isfinite(xi) and xi < window[0]:
-        return {"verdict": "gapped", "xi": xi,
-                "reason": f"gapped: correlations decay exponentially (xi = {xi:.3g} sites, below the smallest "
-                          f"fitted block {window[0]}), area law; no log l fit"}
-    return {"verdict": "critical", "xi": xi, "reason": "no exponential decay of the charge correlations"
-            if xi is None or not math.isfinite(xi) else f"xi = {xi:.3g} sites exceeds the smallest fitted block"}
 
 
 def luttinger_by_charge(cfg: RunConfig, state: ChainState, cuts: list[int], window, correlations: bool) -> dict:

@@ -27,6 +27,7 @@ from mps.pipeline.schema import (
     DEFAULT_ADMIX,
     DEFAULT_STAGES,
     INIT_CHOICES,
+    METHOD_CHOICES,
     OUTPUT_KEYS,
     SOLVER_KEYS,
     STAGE_KEYS,
@@ -77,6 +78,8 @@ def parse_config(data: Mapping[str, Any], default_name: str = "run") -> RunConfi
     name = _name(top.get("name", default_name))
     model = read_model(top.get("model"))
     solver = _solver(section(top.get("solver"), "solver", SOLVER_KEYS))
+    if solver.method == "exact":
+        _check_quadratic(model)
     analysis = _analysis(section(top.get("analysis"), "analysis", ANALYSIS_KEYS), model)
     output = _output(section(top.get("output"), "output", OUTPUT_KEYS), name)
     return RunConfig(name=name, model=model, solver=solver, analysis=analysis, output=output)
@@ -127,6 +130,9 @@ def _solver(sec: Mapping[str, Any]) -> SolverConfig:
                 admix=real(st.get("admix", admix_default), f"{where}.admix", lo=0.0),
             )
         )
+    method = sec.get("method", "sweeps")
+    if method not in METHOD_CHOICES:
+        raise ConfigError("solver.method", f"must be one of {', '.join(METHOD_CHOICES)}, got {show(method)}")
     init = sec.get("init", "random")
     if init not in INIT_CHOICES:
         raise ConfigError("solver.init", f"must be one of {', '.join(INIT_CHOICES)}, got {show(init)}")
@@ -139,7 +145,20 @@ def _solver(sec: Mapping[str, Any]) -> SolverConfig:
         lanczos_restarts=integer(sec.get("lanczos_restarts", 4), "solver.lanczos_restarts", 0),
         lanczos_tol=real(sec.get("lanczos_tol", 1e-10), "solver.lanczos_tol", lo=0.0, lo_open=True),
         init=init,
+        method=method,
     )
+
+
+def _check_quadratic(model: ModelConfig) -> None:
+    """``solver.method: exact`` needs a chain the exact engines describe, with one conserved charge."""
+    fam = model.family_record()
+    if len(model.space().charge_names) == 1:
+        if fam.single_particle(model.sites, model.couplings, model.options) is not None and not fam.species:
+            return
+        if fam.scalar_masses(model.sites, model.couplings, model.options) is not None:
+            return
+    raise ConfigError("solver.method", "exact needs a quadratic chain with one conserved charge (fermions with "
+                                       "V = 0, xxz with Delta = 0, complex-scalar with lam = 0); use sweeps")
 
 
 def _analysis(sec: Mapping[str, Any], model: ModelConfig) -> AnalysisConfig:

@@ -1,4 +1,4 @@
-"""The solver against the exact lattice free-fermion answer of a quadratic chain: the largest
+"""The solver against the exact lattice answer of a quadratic chain (free fermions or the free complex scalar): the largest
 deviations, cut by cut and sector by sector, and the exact tables written beside the solver's
 (``exact_entropies.csv``, ``exact_sectors.csv``, same columns as ``entropies.csv`` and
 ``sectors.csv``). Exact values: Peschel's correlation-matrix method (J. Phys. A 36, L205 (2003)),
@@ -13,12 +13,13 @@ import numpy as np
 
 from mps.analysis.resolved import CutResolved
 from mps.pipeline.schema import RunConfig
-from mps.pipeline.tables import Table, charge_value, renyi_label
+from mps.pipeline.tables import Table, charge_value, record_tables, renyi_label
+from mps.theory import scalar
 from mps.theory.freefermions import (
     block_occupations,
     charge_correlations,
     correlation_matrix,
-    resolve_all_cuts,
+    resolve_correlation_cuts,
 )
 from mps.theory.species import resolve_species_block, species_fillings
 
@@ -31,18 +32,24 @@ def exact_records(cfg: RunConfig, cuts: list[int], renyi, alphas, component: int
     """Exact records of the cuts, exact connected correlations of the resolved charge density and
     the particle number(s), for a chain the family declares quadratic; None otherwise.
 
-    One species: H = sum h_ij c+_i c_j with q = unit N_A + offset l. Several independent species
+    The free complex scalar (family hook ``scalar_masses``): :mod:`mps.theory.scalar`, particle
+    number None. One fermion species: H = sum h_ij c+_i c_j with q = unit N_A + offset l. Several independent species
     (family attribute ``SPECIES``, e.g. the two spin species of the Hubbard chain at U = 0): each
     is filled from the target charge, and the density correlations of charge c add up as
     sum_s (u_c a_{s,c})^2 <n_i n_j>_s^conn (independent species). Raises ValueError when the free
     ground state is degenerate.
     """
     fam = cfg.model.family_record()
+    floor = cfg.analysis.weight_floor
+    masses = fam.scalar_masses(cfg.model.sites, cfg.model.couplings, cfg.model.options)
+    if masses is not None:   # the free complex scalar: Gaussian engine, charge Q = N_a - N_b
+        V = scalar.mass_matrix(masses)
+        X, P = scalar.correlations(V)
+        return scalar.resolve_all_cuts(V, cuts, renyi, alphas, floor), scalar.charge_correlations(X, P), None
     sp = fam.single_particle(cfg.model.sites, cfg.model.couplings, cfg.model.options)
     if sp is None:
         return None
     h, unit, offset = sp
-    floor = cfg.analysis.weight_floor
     if fam.species:
         units = cfg.model.space().charge_units
         fillings = species_fillings(fam.species, cfg.model.integer_charge())
@@ -54,7 +61,7 @@ def exact_records(cfg: RunConfig, cuts: list[int], renyi, alphas, component: int
     total = cfg.model.charge[cfg.model.space().charge_names[component]]
     n_particles = int(round((total - offset * cfg.model.sites) / unit))
     C = correlation_matrix(h, n_particles)
-    exact = resolve_all_cuts(h, n_particles, cuts, renyi, alphas, unit, offset, floor)
+    exact = resolve_correlation_cuts(C, cuts, renyi, alphas, unit, offset, floor)
     return exact, unit**2 * charge_correlations(C), n_particles
 
 
@@ -103,21 +110,5 @@ def deviations(solver: list[CutResolved], exact: list[CutResolved], rare: float 
 
 def exact_tables(exact: list[CutResolved]) -> dict[str, Table]:
     """exact_entropies and exact_sectors tables, with the columns of entropies.csv and sectors.csv."""
-    labels = [renyi_label(n) for n in exact[0].renyi] if exact else []
-    ent_cols = ["cut"] + [f"S_{x}" for x in labels] + ["charge_mean", "charge_var", "S_number", "S_config",
-                                                       "charge_k3", "charge_k4"]
-    ent_rows, sec_rows = [], []
-    for r in exact:
-        ent_rows.append([r.cut] + [float(v) for v in r.entropy]
-                        + [r.cumulant(1), r.cumulant(2), r.number_entropy, r.config_entropy,
-                           r.cumulant(3), r.cumulant(4)])
-        for s, q in enumerate(r.charges):
-            count = float(r.counts[s])
-            sec_rows.append([r.cut, charge_value(q), float(r.probability[s])]
-                            + [float(r.sector_entropy[i][s]) + 0.0 for i in range(len(labels))]
-                            + [int(count) if count < 2.0**53 else count])
-    return {
-        EXACT_ENTROPIES: Table(ent_cols, ent_rows),
-        EXACT_SECTORS: Table(["cut", "charge", "probability"] + [f"S_{x}" for x in labels] + ["count"],
-                             sec_rows),
-    }
+    tables = record_tables(exact, prefix="exact_")
+    return {EXACT_ENTROPIES: tables[EXACT_ENTROPIES], EXACT_SECTORS: tables[EXACT_SECTORS]}

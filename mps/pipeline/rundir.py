@@ -48,8 +48,8 @@ def write_table(path: Path, columns: list[str], rows: list[list]) -> None:
     buf = io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(columns)
-    for row in rows:
-        w.writerow([_cell(v) for v in row])
+    for row in rows:   # the common float cell inline (tables of long exact runs hold millions)
+        w.writerow([repr(v) if type(v) is float and v == v else _cell(v) for v in row])
     write_text(path, buf.getvalue())
 
 

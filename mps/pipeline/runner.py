@@ -48,7 +48,10 @@ SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation
 
 # ----------------------------------------------------------------------------- helpers
 def solver_hash(cfg: RunConfig) -> str:
-    text = json.dumps(cfg.solver.to_dict(), sort_keys=True)
+    settings = cfg.solver.to_dict()
+    if settings["method"] == "sweeps":   # the default method leaves the hash of older checkpoints unchanged
+        del settings["method"]
+    text = json.dumps(settings, sort_keys=True)
     return hashlib.sha256(text.encode()).hexdigest()
 
 
@@ -221,21 +224,28 @@ def _compare_and_draw(directory: Path, cfg: RunConfig, state, show: ProgressLine
 
     settings = ComparisonSettings(window=cfg.analysis.fit_window, correlations=cfg.analysis.correlations)
     report = write_comparison(directory, cfg, state, settings)
-    c = (report.get("central_charge") or {}).get("value")
-    by_charge = report.get("luttinger_by_charge") or {}
-    k = None if by_charge else (report.get("luttinger") or {}).get("value")   # several charges: K per charge
-    xi = (report.get("correlation_length") or {}).get("xi")
-    parts = [f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k)) if value is not None]
-    gapped = (report.get("regime") or {}).get("verdict") == "gapped"
-    for name, entry in by_charge.items():
-        if entry.get("value") is not None:
-            parts.append(f"K_{name} = {entry['value']:.4f}")
-        elif entry.get("regime") == "gapped":
-            parts.append(f"{name} gapped (xi = {entry['correlation_length']:.3g})")
-    if report.get("correlation_length") and not gapped:
-        parts.append(f"correlation length {xi:.3g} sites" if xi is not None and math.isfinite(xi)
-                     else "no exponential decay of charge correlations")
-    line = report["regime"]["reason"] if gapped else "fits: " + (", ".join(parts) or "none")
+    _report_line(directory, cfg, report, show)
+
+
+def _report_line(directory: Path, cfg: RunConfig, report: dict, show: ProgressLine) -> None:
+    """The one-line verdict of comparison.json (regime and the figures it supports), after drawing."""
+    regime = report.get("regime") or {}
+    if regime.get("verdict") == "critical":
+        c = (report.get("central_charge") or {}).get("value")
+        by_charge = report.get("luttinger_by_charge") or {}
+        k = None if by_charge else (report.get("luttinger") or {}).get("value")   # several charges: K per charge
+        parts = [f"{name} = {value:.4f}" for name, value in (("c", c), ("K", k)) if value is not None]
+        for name, entry in by_charge.items():
+            if entry.get("value") is not None:
+                parts.append(f"K_{name} = {entry['value']:.4f}")
+            elif entry.get("regime") == "gapped":
+                parts.append(f"{name} gapped (xi = {entry['correlation_length']:.3g})")
+        line = "critical: " + (", ".join(parts) or "no positive c or K fitted")
+    else:
+        line = regime.get("reason", "regime not decided")
+        summary = (report.get("massive") or {}).get("summary")
+        if summary:
+            line += "; " + summary
     exact = report.get("exact") or {}
     dev = (exact.get("max_deviation") or {}).get("probability") if isinstance(exact, dict) else None
     if isinstance(dev, dict) and dev.get("value") is not None:
@@ -253,8 +263,10 @@ def run(config_path: str, out: str | None = None) -> int:
     cfg = load_config(config_path)
     if out is not None:
         cfg = replace(cfg, output=replace(cfg.output, dir=str(out)))
-    mpo = build_operator(cfg)
     directory = Path(cfg.output.dir)
+    if cfg.solver.method == "exact":
+        return _run_exact(directory, cfg)
+    mpo = build_operator(cfg)
     if (directory / CHECKPOINT).exists():
         raise InputError(f"{directory}: already holds a run; continue it with "
                          f"'chargewise resume {directory}' or choose another output.dir / --out")
@@ -281,10 +293,33 @@ def run(config_path: str, out: str | None = None) -> int:
     return 0
 
 
-def resume(directory: str) -> int:
-    directory = Path(directory)
+def _run_exact(directory: Path, cfg: RunConfig, fresh: bool = True) -> int:
+    """A quadratic chain through the exact engines (``solver.method: exact``); see mps.pipeline.exact_run."""
+    from mps.pipeline.exact_run import run_exact
+
+    if fresh and ((directory / CHECKPOINT).exists() or (directory / SUMMARY).exists()):
+        raise InputError(f"{directory}: already holds a run; choose another output.dir / --out")
+    directory.mkdir(parents=True, exist_ok=True)
+    show = ProgressLine(sweep_settings(cfg))
+    with RunLock(directory):
+        write_text(directory / CONFIG, dump_config(cfg))
+        report = run_exact(directory, cfg, show.say)
+        _report_line(directory, cfg, report, show)
+    return 0
+
+
+def _exact_config(directory: Path) -> RunConfig | None:
+    """The config of an exact run in ``directory`` (None for a swept run)."""
     if not (directory / CONFIG).is_file():
         raise InputError(f"{directory}: not a run directory (no {CONFIG})")
+    cfg = load_config(directory / CONFIG)
+    return replace(cfg, output=replace(cfg.output, dir=str(directory))) if cfg.solver.method == "exact" else None
+
+
+def resume(directory: str) -> int:
+    directory = Path(directory)
+    if _exact_config(directory) is not None:
+        raise InputError(f"{directory}: an exact run (solver.method: exact) has nothing to resume; run it again")
     cfg = load_config(directory / CONFIG)
     cfg = replace(cfg, output=replace(cfg.output, dir=str(directory)))
     with RunLock(directory):
@@ -325,6 +360,8 @@ def load_run(directory: str | Path):
 def analyze(directory: str, renyi=None, cuts=None) -> int:
     """Recompute the entanglement tables from the stored state, without solving again."""
     directory = Path(directory)
+    if _exact_config(directory) is not None:
+        raise InputError(f"{directory}: an exact run writes every table already; run it again to change them")
     cfg, state, _ = load_run(directory)
     with RunLock(directory):
         summary_path = directory / SUMMARY
@@ -344,6 +381,9 @@ def bench(quick: bool = False) -> int:
 def compare(directory: str) -> int:
     """Redo the fits, the exact free-fermion comparison and the plots of a finished run."""
     directory = Path(directory)
+    exact = _exact_config(directory)
+    if exact is not None:
+        return _run_exact(directory, exact, fresh=False)
     cfg, state, _ = load_run(directory)
     with RunLock(directory):
         _compare_and_draw(directory, cfg, state, ProgressLine(sweep_settings(cfg)))

@@ -15,6 +15,8 @@ result. Schema (defaults in brackets; unknown keys at any level are refused)::
       [all], terms: [{product: str, coef: number | coupling | {value, stagger, dimer} | {per_site},
       add_conjugate: bool [false]}]; see mps.pipeline.model_section
     solver:
+      method: sweeps | exact                    [sweeps; exact: quadratic one-charge chains only, through
+                                                 the exact free-field engines, no sweeps]
       stages: [{bond: int >= 1, sweeps: int >= 1, admix: number >= 0}]
                                                 [[{bond: 32, sweeps: 2}, {bond: 128, sweeps: 6}];
                                                  admix 1e-5, 0 on the last stage]
@@ -46,7 +48,7 @@ from mps.chain.lattice import LocalSpace, Term
 
 TOP_KEYS = ("name", "model", "solver", "analysis", "output")
 MODEL_KEYS = ("family", "sites", "couplings", "charge")   # plus the family's options
-SOLVER_KEYS = ("stages", "discard", "energy_tol", "seed", "lanczos_vectors", "lanczos_restarts",
+SOLVER_KEYS = ("method", "stages", "discard", "energy_tol", "seed", "lanczos_vectors", "lanczos_restarts",
                "lanczos_tol", "init")
 STAGE_KEYS = ("bond", "sweeps", "admix")
 ANALYSIS_KEYS = ("renyi", "cuts", "flux_points", "spectrum_levels", "weight_floor", "resolve", "fit_window",
@@ -56,6 +58,7 @@ OUTPUT_KEYS = ("dir", "plots")
 DEFAULT_STAGES = ((32, 2), (128, 6))
 DEFAULT_ADMIX = 1e-5
 INIT_CHOICES = ("random", "product")
+METHOD_CHOICES = ("sweeps", "exact")
 
 
 @dataclass(frozen=True)
@@ -125,9 +128,11 @@ class SolverConfig:
     lanczos_restarts: int
     lanczos_tol: float
     init: str
+    method: str = "sweeps"
 
     def to_dict(self) -> dict[str, Any]:
         return {
+            "method": self.method,
             "stages": [{"bond": s.bond, "sweeps": s.sweeps, "admix": s.admix} for s in self.stages],
             "discard": self.discard,
             "energy_tol": self.energy_tol,

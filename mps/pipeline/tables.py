@@ -130,6 +130,40 @@ def entanglement_tables(state: ChainState, units: tuple[float, ...], analysis: A
     }
 
 
+def record_tables(records: list[CutResolved], prefix: str = "", renyi=None) -> dict[str, Table]:
+    """entropies, sectors and moments tables (names with ``prefix``) of records computed elsewhere
+    (the exact engines), with the columns of :func:`entanglement_tables` for one charge; ``renyi``
+    selects the written Renyi columns (default: all of the records').
+
+    ``count`` is written as an integer below 2^53 and as a float above (inf for bosonic sectors,
+    which hold infinitely many levels).
+    """
+    wanted = tuple(records[0].renyi if renyi is None else renyi) if records else ()
+    idx = [records[0].renyi.index(n) for n in wanted]
+    labels = [renyi_label(n) for n in wanted]
+    ent_cols = ["cut"] + [f"S_{x}" for x in labels] + ["charge_mean", "charge_var", "S_number", "S_config",
+                                                       "charge_k3", "charge_k4"]
+    ent_rows, sec_rows, mom_rows = [], [], []
+    for r in records:
+        ent_rows.append([r.cut] + [float(r.entropy[i]) for i in idx]
+                        + [r.cumulant(1), r.cumulant(2), r.number_entropy, r.config_entropy,
+                           r.cumulant(3), r.cumulant(4)])
+        for s, q in enumerate(r.charges):
+            count = float(r.counts[s])
+            sec_rows.append([r.cut, charge_value(q), float(r.probability[s])]
+                            + [float(r.sector_entropy[i][s]) + 0.0 for i in idx]
+                            + [int(count) if count < 2.0**53 else count])
+        for n, row in zip(labels, r.moments[idx]):
+            for a, z in zip(r.alphas, row):
+                mom_rows.append([r.cut, n, float(a), float(z.real), float(z.imag)])
+    return {
+        f"{prefix}entropies": Table(ent_cols, ent_rows),
+        f"{prefix}sectors": Table(["cut", "charge", "probability"] + [f"S_{x}" for x in labels] + ["count"],
+                                  sec_rows),
+        f"{prefix}moments": Table(["cut", "n", "alpha", "re", "im"], mom_rows),
+    }
+
+
 def write_tables(directory: Path, tables: dict[str, Table]) -> None:
     for name, table in tables.items():
         write_table(Path(directory) / f"{name}.csv", table.columns, table.rows)

@@ -37,7 +37,7 @@ from chains import solve
 RENYI = (1.0, 2.0, 3.0, math.inf)
 TOP_KEYS = {"name", "family", "sites", "couplings", "charge", "renyi", "version", "window",
             "central_charge", "luttinger", "luttinger_by_charge", "equipartition", "charged_moments",
-            "correlation_length", "regime", "exact"}
+            "correlation_length", "regime", "exact", "method", "massive", "sum_rules"}
 
 
 def config(family: str, sites: int, couplings: dict, charge: dict, stages, **solver) -> dict:

@@ -60,7 +60,7 @@ BAD = {
     "model not a mapping": (edit("model", "xxz"), "model", "mapping"),
     "family missing": (edit("model.family", DELETE), "model.family", "required"),
     "sites missing": (edit("model.sites", DELETE), "model.sites", "required"),
-    "unknown family": (edit("model.family", "xyz"), "model.family", "valid: bosons, fermions, hubbard, spin1, written, xxz"),
+    "unknown family": (edit("model.family", "xyz"), "model.family", "valid: bosons, complex-scalar, fermions, hubbard, spin1, written, xxz"),
     "sites string": (edit("model.sites", "ten"), "model.sites", "integer >= 2"),
     "sites float": (edit("model.sites", 12.0), "model.sites", "integer >= 2"),
     "sites one": (edit("model.sites", 1), "model.sites", "integer >= 2, got 1"),

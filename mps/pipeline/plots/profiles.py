@@ -1,5 +1,9 @@
 """Profiles along the chain: S_n(l) with the Calabrese-Cardy fit, and the block charge variance
 with the fit of the Luttinger parameter.
+
+Both fits are critical (log l) forms: they are drawn only when comparison.json's regime verdict is
+``critical`` or was never decided (older files), and never with a fitted c or K <= 0; otherwise the
+panel says why (:class:`mps.pipeline.plots.massive.RegimeView`).
 """
 
 from __future__ import annotations
@@ -22,12 +26,20 @@ from mps.pipeline.plots.common import (
     renyi_columns,
     save,
 )
+from mps.pipeline.plots.massive import RegimeView, note_box, positive, shorten
 from mps.theory.fieldtheory import chord_length, renyi_prefactor
 
 
 # ----------------------------------------------------------------------------- figures
 def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
-    """S_n(l) against the cut and against log l_eff, with the Calabrese-Cardy fits and exact values."""
+    """Write :func:`entropy_profile_figure` to ``path`` (None when entropies.csv is absent)."""
+    fig = entropy_profile_figure(run)
+    return None if fig is None else save(fig, path)
+
+
+def entropy_profile_figure(run: RunFiles) -> Figure | None:
+    """S_n(l) against the cut and against log l_eff, with the Calabrese-Cardy fits (critical regime
+    only) and exact values."""
     ent = run.entropies
     if ent is None or not run.sites:
         return None
@@ -35,8 +47,11 @@ def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
     if not cols:
         return None
     L, cuts = run.sites, ent["cut"]
-    gapped = lookup(run.comparison, "regime", "verdict") == "gapped"
-    fits = {} if gapped else (lookup(run.comparison, "central_charge", "by_renyi") or {})
+    regime = RegimeView.of(run)
+    fits = lookup(run.comparison, "central_charge", "by_renyi") if regime.critical else None
+    fits = fits if isinstance(fits, dict) else {}
+    negative = [label for label, fit in fits.items() if fit_entry(fit) and not positive(fit)]
+    fits = {label: fit for label, fit in fits.items() if positive(fit)}   # never a fitted c <= 0
     exact = run.exact_entropies
     fig = Figure(figsize=(11.5, 4.9), layout="constrained")
     ax1, ax2 = fig.subplots(1, 2)
@@ -61,10 +76,11 @@ def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
             smooth = fit["value"] * renyi_prefactor(n) * np.log(xl) + fit["const"]
             for sign in (1.0, -1.0):   # even-l and odd-l branches of the parity term
                 ax1.plot(ll, smooth + sign * fit["alternating"] * xl ** (-fit["exponent"]), color=col,
-                         **FIT_STYLE, zorder=2)
+                         **FIT_STYLE, zorder=2, gid="critical-fit")
             corrected = y - fit["alternating"] * (-1.0) ** cuts * np.exp(-fit["exponent"] * x)
             xs = np.linspace(np.nanmin(x), np.nanmax(x), 50)
-            ax2.plot(xs, fit["value"] * renyi_prefactor(n) * xs + fit["const"], color=col, **FIT_STYLE)
+            ax2.plot(xs, fit["value"] * renyi_prefactor(n) * xs + fit["const"], color=col, **FIT_STYLE,
+                     gid="critical-fit")
         ax2.plot(x[inside], corrected[inside], "o", ms=3.6, color=col)
         ax2.plot(x[~inside], corrected[~inside], "o", ms=3.6, mfc="none", color=col, alpha=0.55)
         ranges.append(corrected[inside])
@@ -81,11 +97,12 @@ def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
         ax1.axvspan(window[0], window[1], color="0.5", alpha=0.08, lw=0)
     ax1.set(xlabel=r"cut $\ell$ (sites in the left block)", ylabel=r"Rényi entropy $S_n(\ell)$",
             title="entanglement profile", xlim=(0, L))
-    if gapped:   # say why no Calabrese-Cardy curve is drawn
-        xi = lookup(run.comparison, "regime", "xi")
-        ax2.text(0.5, 0.5, "gapped chain" + (f" (correlation length {xi:.3g} sites)" if isinstance(xi, float) else "")
-                 + ":\narea law, so no Calabrese–Cardy fit", transform=ax2.transAxes, ha="center", va="center",
-                 fontsize=9.5, bbox=dict(facecolor="white", edgecolor="0.6", alpha=0.9))
+    note = regime.note()      # say why no Calabrese-Cardy curve is drawn
+    if note is None and negative:
+        note = shorten("central charge fitted <= 0 for n = " + ", ".join(negative)
+                       + ": the log l form does not describe the data, no curve drawn")
+    if note:
+        note_box(ax2, note)
     ax2.set(xlabel=r"$\log \ell_{\rm eff}$,  $\ell_{\rm eff} = (2L/\pi)\,\sin(\pi \ell/L)$",
             ylabel=r"$S_n - A_n(-1)^\ell\,\ell_{\rm eff}^{-p_n}$" if fits else r"$S_n(\ell)$",
             title="against the chord length" + (" (parity term removed)" if fits else ""))
@@ -101,18 +118,30 @@ def draw_entropy_profile(run: RunFiles, path: Path) -> Path | None:
         labels.append("exact lattice free fermions")
     fig.legend(handles, labels, loc="outside lower center", ncol=min(4, len(handles)), frameon=False)
     fig.suptitle(run.title("Rényi entanglement entropies"))
-    return save(fig, path)
+    return fig
 
 
 def draw_charge_variance(run: RunFiles, path: Path) -> Path | None:
-    """sigma^2(l) of the block charge against log l_eff with the fitted (K/(2 pi^2)) log l_eff line."""
+    """Write :func:`charge_variance_figure` to ``path`` (None without a charge_var column)."""
+    fig = charge_variance_figure(run)
+    return None if fig is None else save(fig, path)
+
+
+def charge_variance_figure(run: RunFiles) -> Figure | None:
+    """sigma^2(l) of the block charge against log l_eff with the fitted (K/(2 pi^2)) log l_eff line
+    (critical regime only, K > 0)."""
     ent = run.entropies
     if ent is None or not run.sites or "charge_var" not in ent:
         return None
     L, cuts, var = run.sites, ent["cut"], ent["charge_var"]
     x = np.log(chord_length(cuts, L))
     lutt = lookup(run.comparison, "luttinger")
+    regime = RegimeView.of(run)
     fit = fit_entry(lookup(lutt, "fit")) if lookup(lutt, "value") is not None else None
+    withheld = None
+    if fit is not None and not (regime.critical and positive(fit)):   # never a K <= 0, nor outside the regime
+        withheld = None if not regime.critical else f"K fitted as {fit['value']:.3g} <= 0: no line drawn"
+        fit = None
     slope = lookup(lutt, "slope")
     slope = slope if isinstance(slope, (int, float)) else 1 / (2 * np.pi**2)
     fig = Figure(figsize=(7.6, 6.0), layout="constrained")
@@ -135,20 +164,23 @@ def draw_charge_variance(run: RunFiles, path: Path) -> Path | None:
         ba = lookup(lutt, "bethe_ansatz")
         if isinstance(ba, (int, float)):
             label += rf" (Bethe ansatz ${ba:.3f}$)"
-        ax.plot(xs, K * slope * xs + fit["const"], color=colour(1), **FIT_STYLE, label=label)
+        ax.plot(xs, K * slope * xs + fit["const"], color=colour(1), **FIT_STYLE, label=label, gid="critical-fit")
         lo, hi = fit["window"]
         xe = np.linspace(np.log(chord_length(min(lo, L - hi), L)), np.nanmax(x), 200)   # fitted range only
         smooth = K * slope * xe + fit["const"]
         for sign in (1.0, -1.0):   # even-l and odd-l branches
             ax.plot(xe, smooth + sign * fit["alternating"] * np.exp(-fit["exponent"] * xe), color=colour(1),
-                    ls=":", lw=0.9)
+                    ls=":", lw=0.9, gid="critical-fit")
         ax.plot([], [], color=colour(1), ls=":", lw=0.9,
                 label=rf"with parity term $\pm A\,\ell_{{\rm eff}}^{{-{fit['exponent']:.2f}}}$")
     if fit:
         ax.plot([], [], "o", ms=4, color=colour(0), mfc="none", alpha=0.5,
                 label=f"outside the fit window {fit['window'][0]} ≤ ℓ ≤ {fit['window'][1]}")
+    note = regime.note("massive_moments.png") or (withheld and shorten(withheld))
+    if note:
+        note_box(ax, note)
     ax.set(xlabel=r"$\log \ell_{\rm eff}$,  $\ell_{\rm eff} = (2L/\pi)\,\sin(\pi \ell/L)$",
            ylabel=rf"block charge variance $\sigma^2(\ell)$ of ${run.charge_tex}$")
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=2, frameon=False)
     fig.suptitle(run.title("block charge variance"))
-    return save(fig, path)
+    return fig

@@ -1,5 +1,10 @@
 """The charge sectors of the central cut: S_n(q) against the equipartition prediction, and p(q)
 against the Gaussian with the measured variance.
+
+The leading-order S_n(q) and the Gaussian p(q) are Luttinger-liquid forms: drawn in the critical
+regime or when comparison.json never decided it (older files); a gapped chain gets a note pointing
+to the massive figures, an undecided one the shortened reason, and the right panel of the S_n(q)
+figure then shows S_1(q) - S_1 without a theory form (:class:`mps.pipeline.plots.massive.RegimeView`).
 """
 
 from __future__ import annotations
@@ -25,12 +30,19 @@ from mps.pipeline.plots.common import (
     renyi_columns,
     save,
 )
+from mps.pipeline.plots.massive import RegimeView, note_box
 from mps.theory.fieldtheory import gaussian_probability, resolved_entropy_leading
 
 
 def draw_sector_entropies(run: RunFiles, path: Path) -> Path | None:
+    """Write :func:`sector_entropies_figure` to ``path`` (None when sectors.csv is absent)."""
+    fig = sector_entropies_figure(run)
+    return None if fig is None else save(fig, path)
+
+
+def sector_entropies_figure(run: RunFiles) -> Figure | None:
     """S_n(q) at mid-chain against q with the leading (equipartition) prediction, and S_1(q) minus
-    that prediction at several cuts against q - <q>."""
+    that prediction at several cuts against q - <q> (critical regime; otherwise S_1(q) - S_1)."""
     mid = central_sectors(run)
     if mid is None:
         return None
@@ -39,6 +51,7 @@ def draw_sector_entropies(run: RunFiles, path: Path) -> Path | None:
     totals = central_totals(run, cut)
     threshold = lookup(run.comparison, "equipartition", "threshold")
     threshold = threshold if isinstance(threshold, (int, float)) else SECTOR_THRESHOLD
+    regime = RegimeView.of(run)
     fig = Figure(figsize=(11.5, 4.9), layout="constrained")
     ax1, ax2 = fig.subplots(1, 2)
     q, p = sec["charge"], sec["probability"]
@@ -54,9 +67,9 @@ def draw_sector_entropies(run: RunFiles, path: Path) -> Path | None:
         ax1.plot(q[ok & strong], s[ok & strong], "o-", ms=5, color=col, label=f"$S_{{{n_tex(n)}}}(q)$")
         ax1.plot(q[ok & ~strong], s[ok & ~strong], "o", ms=5, mfc="none", color=col, alpha=0.6)
         shown.extend(s[ok])
-        if totals and totals.get("charge_var", 0) > 0 and f"S_{label}" in totals:
+        if regime.critical and totals and totals.get("charge_var", 0) > 0 and f"S_{label}" in totals:
             pred = float(resolved_entropy_leading(totals[f"S_{label}"], totals["charge_var"], n))
-            ax1.axhline(pred, color=col, **FIT_STYLE)
+            ax1.axhline(pred, color=col, **FIT_STYLE, gid="critical-fit")
             predicted.append((n, pred))
         if exact is not None and f"S_{label}" in exact:
             keep = exact["probability"] > min(threshold, float(np.min(p))) / 10
@@ -66,15 +79,19 @@ def draw_sector_entropies(run: RunFiles, path: Path) -> Path | None:
     ax1.set(xlabel=rf"block charge $q$ (${run.charge_tex}$)", ylabel=r"$S_n(q)$",
             title=rf"cut $\ell = {cut}$ (filled: $p(q) > {threshold:g}$)")
     handles, labels = ax1.get_legend_handles_labels()
-    handles.append(Line2D([], [], color="0.3", **FIT_STYLE))
-    labels.append(r"leading order $S_n - \frac{1}{2}\log(2\pi\sigma^2) + \frac{\log n}{2(1-n)}$")
+    if predicted:
+        handles.append(Line2D([], [], color="0.3", **FIT_STYLE))
+        labels.append(r"leading order $S_n - \frac{1}{2}\log(2\pi\sigma^2) + \frac{\log n}{2(1-n)}$")
+    note = regime.note("massive_sector_entropies.png")
+    if note:
+        note_box(ax1, note)
     if exact is not None:
         handles.append(Line2D([], [], ls="none", marker="x", color="0.15"))
         labels.append("exact free fermions")
     fig.legend(handles, labels, loc="outside lower left", ncol=len(handles), frameon=False)
-    _draw_equipartition_cuts(run, ax2, threshold)
+    _draw_equipartition_cuts(run, ax2, threshold, regime.critical)
     fig.suptitle(run.title("charge-resolved entropies and equipartition"))
-    return save(fig, path)
+    return fig
 
 
 def _limit_to_data(ax, values: np.ndarray, predicted: list[tuple[float, float]]) -> None:
@@ -96,12 +113,16 @@ def _limit_to_data(ax, values: np.ndarray, predicted: list[tuple[float, float]])
         ax.text(0.01, 0.99, text, transform=ax.transAxes, va="top", fontsize=9, color="0.3")
 
 
-def _draw_equipartition_cuts(run: RunFiles, ax, threshold: float) -> None:
-    """S_1(q) - leading prediction against q - <q> for a few cuts from L/8 to L/2."""
+def _draw_equipartition_cuts(run: RunFiles, ax, threshold: float, critical: bool = True) -> None:
+    """S_1(q) - leading prediction against q - <q> for a few cuts from L/8 to L/2; outside the
+    critical regime S_1(q) - S_1 (no theory form)."""
     sec, ent = run.sectors, run.entropies
-    ax.set(xlabel=r"$q - \langle q\rangle$",
-           ylabel=r"$S_1(q) - [S_1 - \frac{1}{2}\log(2\pi\sigma^2) - \frac{1}{2}]$",
-           title=r"$S_1(q)$ relative to the leading prediction")
+    if critical:
+        ax.set(xlabel=r"$q - \langle q\rangle$",
+               ylabel=r"$S_1(q) - [S_1 - \frac{1}{2}\log(2\pi\sigma^2) - \frac{1}{2}]$",
+               title=r"$S_1(q)$ relative to the leading prediction")
+    else:
+        ax.set(xlabel=r"$q - \langle q\rangle$", ylabel=r"$S_1(q) - S_1$", title=r"$S_1(q)$ relative to $S_1$")
     if ent is None or "S_1" not in sec or not run.sites:
         return
     L = run.sites
@@ -113,16 +134,18 @@ def _draw_equipartition_cuts(run: RunFiles, ax, threshold: float) -> None:
         if not tot or not tot.get("charge_var", 0) > 0 or "charge_mean" not in tot or "S_1" not in tot:
             continue
         rows = (sec["cut"] == cut) & (sec["probability"] > threshold) & np.isfinite(sec["S_1"])
-        pred = float(resolved_entropy_leading(tot["S_1"], tot["charge_var"], 1.0))
+        pred = float(resolved_entropy_leading(tot["S_1"], tot["charge_var"], 1.0)) if critical else tot["S_1"]
         dq = sec["charge"][rows] - tot["charge_mean"]
         col = matplotlib.colormaps["viridis"](k / max(len(cuts) - 1, 1) * 0.85)
         ax.plot(dq, sec["S_1"][rows] - pred, "o-", ms=4.5, color=col,
                 label=rf"$\ell = {cut}$, $\sigma^2 = {tot['charge_var']:.3f}$")
-    ax.axhline(0.0, color="0.3", **FIT_STYLE)
-    values = np.concatenate([np.asarray(line.get_ydata(), dtype=float) for line in ax.lines])
+    data = len(ax.lines)
+    if critical:
+        ax.axhline(0.0, color="0.3", **FIT_STYLE, gid="critical-fit")
+    values = np.concatenate([np.asarray(line.get_ydata(), dtype=float) for line in ax.lines] or [np.zeros(0)])
     values = values[np.isfinite(values)]
-    if ax.lines[:-1] and values.size:
-        lo, hi = min(values.min(), 0.0), max(values.max(), 0.0)
+    if data and values.size:
+        lo, hi = (min(values.min(), 0.0), max(values.max(), 0.0)) if critical else (values.min(), values.max())
         span = max(hi - lo, 1e-3)
         ax.set_ylim(lo - 0.06 * span, hi + 0.45 * span)     # headroom for the legend
         ax.legend(loc="upper center", ncol=2)
@@ -142,7 +165,14 @@ def _lattice_gaussian(lattice: np.ndarray, mean: float, var: float, spacing: flo
 
 
 def draw_charge_distribution(run: RunFiles, path: Path) -> Path | None:
-    """p(q) at mid-chain against the Gaussian of the measured mean and variance (linear and log)."""
+    """Write :func:`charge_distribution_figure` to ``path`` (None when sectors.csv is absent)."""
+    fig = charge_distribution_figure(run)
+    return None if fig is None else save(fig, path)
+
+
+def charge_distribution_figure(run: RunFiles) -> Figure | None:
+    """p(q) at mid-chain against the Gaussian of the measured mean and variance (linear and log;
+    the Gaussian in the critical regime only)."""
     mid = central_sectors(run)
     if mid is None:
         return None
@@ -152,6 +182,7 @@ def draw_charge_distribution(run: RunFiles, path: Path) -> Path | None:
     mean = (totals or {}).get("charge_mean", float(np.sum(q * p) / np.sum(p)))
     var = (totals or {}).get("charge_var", float(np.sum((q - mean) ** 2 * p) / np.sum(p)))
     spacing = charge_spacing(q)
+    regime = RegimeView.of(run)
     fig = Figure(figsize=(11.5, 4.9), layout="constrained")
     ax1, ax2 = fig.subplots(1, 2)
     floor = float(np.min(p[p > 0])) if np.any(p > 0) else 1e-16
@@ -162,9 +193,9 @@ def draw_charge_distribution(run: RunFiles, path: Path) -> Path | None:
     lattice = np.arange(q.min() - 2 * spacing, q.max() + 2.5 * spacing, spacing)
     for ax, log in ((ax1, False), (ax2, True)):
         ax.bar(q, p, width=0.6 * spacing, color=colour(0), alpha=0.75, label="MPS $p(q)$")
-        if var > 0:   # the Gaussian normalised on the charge lattice; lines only guide the eye
+        if regime.critical and var > 0:   # the Gaussian normalised on the charge lattice; lines guide the eye
             ax.plot(lattice, _lattice_gaussian(lattice, mean, var, spacing), "D--", ms=5, mfc="none",
-                    color=colour(1), lw=0.9,
+                    color=colour(1), lw=0.9, gid="critical-fit",
                     label=rf"Gaussian on the lattice, $\langle q\rangle = {mean:.3f}$, $\sigma^2 = {var:.3f}$")
         if exact is not None:
             ax.plot(exact["charge"], exact["probability"], "x", ms=7, color="0.15", label="exact free fermions")
@@ -178,9 +209,12 @@ def draw_charge_distribution(run: RunFiles, path: Path) -> Path | None:
     ax2.set_title("log scale")
     gauss = lookup(run.comparison, "equipartition", "gaussian")
     handles, labels = ax1.get_legend_handles_labels()
-    if isinstance(gauss, dict) and isinstance(gauss.get("total_variation"), (int, float)):
+    note = regime.note("massive_distribution.png")
+    if note:
+        note_box(ax1, note)
+    if regime.critical and isinstance(gauss, dict) and isinstance(gauss.get("total_variation"), (int, float)):
         handles.append(Line2D([], [], ls="none"))
         labels.append(f"total-variation distance from the Gaussian: {gauss['total_variation']:.2e}")
     fig.legend(handles, labels, loc="outside lower center", ncol=len(handles), frameon=False)
     fig.suptitle(run.title("charge distribution of the block"))
-    return save(fig, path)
+    return fig
