@@ -1,0 +1,141 @@
+"""The points of a parameter scan: the ``scan:`` section of a config expanded into ordinary configs.
+
+``scan:`` holds ``grid:`` (dotted config key -> list of values; Cartesian product) and ``paired:``
+(dotted keys -> lists of one common length that vary together; one axis of the product). Every
+point is the base config with those keys replaced, validated as an ordinary config before any point
+runs, so a bad axis (unknown key, empty list, paired lists of unequal length, a value the config
+refuses) stops the scan with one line naming the key. Each point gets a readable directory name
+built from its values (``Delta=0.5,sites=32``), unique within the scan, and its own seed
+(``solver.seed`` + point index unless ``solver.seed`` is itself scanned), so disorder drawn from the
+seed is reproducible per point.
+"""
+
+from __future__ import annotations
+
+import copy
+import itertools
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from mps.pipeline.errors import ConfigError
+from mps.pipeline.fields import show
+
+SCAN_KEYS = ("grid", "paired", "warm_start")
+
+
+@dataclass(frozen=True)
+class ScanPoint:
+    """One point: its index, its values (dotted key -> value, in axis order), its directory name
+    and the full config mapping (the scan section removed, output.dir set to the point's directory)."""
+
+    index: int
+    values: dict[str, Any]
+    name: str
+    config: dict
+
+
+def scan_axes(scan: Any) -> list[dict[str, list]]:
+    """The axes of the product: one per ``grid`` key, one for all ``paired`` keys together."""
+    if not isinstance(scan, Mapping):
+        raise ConfigError("scan", f"must be a mapping with keys {', '.join(SCAN_KEYS)}, got {show(scan)}")
+    unknown = sorted(set(scan) - set(SCAN_KEYS))
+    if unknown:
+        raise ConfigError(f"scan.{unknown[0]}", f"is not a scan key; valid: {', '.join(SCAN_KEYS)}")
+    axes: list[dict[str, list]] = []
+    seen: set[str] = set()
+    for part in ("grid", "paired"):
+        block = scan.get(part) or {}
+        if not isinstance(block, Mapping):
+            raise ConfigError(f"scan.{part}", f"must map dotted config keys to lists, got {show(block)}")
+        for key, values in block.items():
+            where = f"scan.{part}.{key}"
+            _check_key(key, where)
+            if key in seen:
+                raise ConfigError(where, "is scanned twice (in grid and paired)")
+            seen.add(key)
+            if not isinstance(values, list) or not values:
+                raise ConfigError(where, f"must be a non-empty list of values, got {show(values)}")
+        if part == "grid":
+            axes.extend({key: list(values)} for key, values in block.items())
+        elif block:
+            lengths = {key: len(values) for key, values in block.items()}
+            if len(set(lengths.values())) > 1:
+                key = max(lengths, key=lambda k: lengths[k] != next(iter(lengths.values())))
+                raise ConfigError(f"scan.paired.{key}", "paired lists must have one common length, got "
+                                  + ", ".join(f"{k}: {n}" for k, n in lengths.items()))
+            axes.append({key: list(values) for key, values in block.items()})
+    if not axes:
+        raise ConfigError("scan", "needs at least one axis under grid or paired")
+    return axes
+
+
+def scan_points(data: Mapping[str, Any]) -> list[ScanPoint]:
+    """Every point of the scan in ``data`` (a loaded config mapping with a ``scan`` section).
+
+    The returned configs are plain mappings; validate each with ``parse_config`` before running.
+    """
+    axes = scan_axes(data.get("scan"))
+    base = {k: copy.deepcopy(v) for k, v in data.items() if k != "scan"}
+    out_dir = str((base.get("output") or {}).get("dir") or f"runs/{base.get('name', 'scan')}")
+    seed_scanned = any("solver.seed" in axis for axis in axes)
+    points, names = [], set()
+    for index, combo in enumerate(itertools.product(*(range(len(next(iter(a.values())))) for a in axes))):
+        values = {key: vals[i] for axis, i in zip(axes, combo) for key, vals in axis.items()}
+        cfg = copy.deepcopy(base)
+        for key, value in values.items():
+            _assign(cfg, key, copy.deepcopy(value))
+        if not seed_scanned:
+            solver = cfg.setdefault("solver", {}) or {}
+            cfg["solver"] = solver
+            solver["seed"] = int(solver.get("seed", 1)) + index
+        name = point_name(values, index, names)
+        names.add(name)
+        cfg.setdefault("output", {})
+        cfg["output"] = dict(cfg["output"] or {}, dir=f"{out_dir}/{name}")
+        cfg["name"] = f"{base.get('name', 'scan')}-{name}"
+        points.append(ScanPoint(index, values, name, cfg))
+    return points
+
+
+def point_name(values: Mapping[str, Any], index: int, taken: set[str]) -> str:
+    """``Delta=0.5,sites=32``: the last part of each dotted key with its value; lists and mappings
+    (stages, per-site couplings) by position; the index is appended if the name repeats."""
+    parts = []
+    for key, value in values.items():
+        short = key.rsplit(".", 1)[-1]
+        text = _plain(value) if isinstance(value, (int, float, str, bool)) else f"#{index}"
+        parts.append(f"{short}={text}")
+    name = re.sub(r"[^A-Za-z0-9_.=,+-]", "_", ",".join(parts))[:120] or f"point{index}"
+    return name if name not in taken else f"{name},{index}"
+
+
+def _plain(value) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    return str(value)
+
+
+def _check_key(key: Any, where: str) -> None:
+    if not isinstance(key, str) or not re.fullmatch(r"[A-Za-z_][\w+-]*(\.[A-Za-z_^][\w+^-]*)+", key):
+        raise ConfigError(where, "must be a dotted config key such as model.couplings.Delta or model.sites")
+    if key.split(".")[0] in ("scan", "name", "output"):
+        raise ConfigError(where, "cannot be scanned (each point gets its own name and directory)")
+
+
+def _assign(cfg: dict, dotted: str, value: Any) -> None:
+    """cfg[a][b][c] = value for ``a.b.c``, creating missing mappings; refuses to descend into a
+    non-mapping (the config validation then names any key the config does not know)."""
+    keys = dotted.split(".")
+    node = cfg
+    for i, key in enumerate(keys[:-1]):
+        nxt = node.get(key)
+        if nxt is None:
+            nxt = node[key] = {}
+        if not isinstance(nxt, dict):
+            raise ConfigError(f"scan: {dotted}", f"{'.'.join(keys[:i + 1])} is {show(nxt)}, not a mapping")
+        node = nxt
+    node[keys[-1]] = value
