@@ -134,14 +134,19 @@ def parse_amount(raw) -> Amount:
 class SitePattern:
     """Coefficients over the placements j = 0..count-1 of a product.
 
-    value (1 + dimer (-1)^j) + stagger (-1)^j, or the explicit list ``per_site`` (one entry per
-    placement: L values for a one-site term, L - 1 for a nearest-neighbour one, ...).
+    value (1 + dimer (-1)^j) + stagger (-1)^j + random u_j, or the explicit list ``per_site`` (one
+    entry per placement: L values for a one-site term, L - 1 for a nearest-neighbour one, ...).
+    The disorder u_j is uniform in [-1, 1], drawn by numpy's default generator (PCG64) seeded with
+    ``seed`` (an integer, or a coupling holding one, so a scan over that coupling averages over
+    realisations); the same seed gives the same couplings on every machine and in every run.
     """
 
     value: Amount = Amount(0.0)
     stagger: Amount = Amount(0.0)
     dimer: Amount = Amount(0.0)
     per_site: tuple[Amount, ...] | None = None
+    random: Amount = Amount(0.0)
+    seed: Amount | None = None
 
     def values(self, count: int, couplings: Mapping[str, float]) -> np.ndarray:
         if self.per_site is not None:
@@ -151,12 +156,24 @@ class SitePattern:
             return np.array([a.value(couplings) for a in self.per_site])
         sign = alternating(count)
         v = self.value.value(couplings)
-        return v * (1.0 + self.dimer.value(couplings) * sign) + self.stagger.value(couplings) * sign
+        out = v * (1.0 + self.dimer.value(couplings) * sign) + self.stagger.value(couplings) * sign
+        width = self.random.value(couplings)
+        if width != 0.0:
+            out = out + width * np.random.default_rng(self.disorder_seed(couplings)).uniform(-1.0, 1.0, count)
+        return out
+
+    def disorder_seed(self, couplings: Mapping[str, float]) -> int:
+        """The seed of the disorder draw: a non-negative integer (or a coupling holding one)."""
+        seed = 0.0 if self.seed is None else self.seed.value(couplings)
+        if not (float(seed).is_integer() and seed >= 0):
+            raise TermError(f"the disorder seed must be an integer >= 0, got {seed!r}")
+        return int(seed)
 
     def names(self) -> set[str]:
         """Coupling names the pattern refers to."""
-        amounts = self.per_site if self.per_site is not None else (self.value, self.stagger, self.dimer)
-        return {a.name for a in amounts if a.name is not None}
+        amounts = self.per_site if self.per_site is not None else (self.value, self.stagger, self.dimer,
+                                                                    self.random, self.seed)
+        return {a.name for a in amounts if a is not None and a.name is not None}
 
 
 def uniform(value: float) -> SitePattern:

@@ -66,10 +66,12 @@ class WrittenTerm:
         c = self.coef
         if c.per_site is not None:
             coef = {"per_site": [a.written() for a in c.per_site]}
-        elif c.stagger.factor == 0.0 and c.dimer.factor == 0.0:
+        elif c.stagger.factor == 0.0 and c.dimer.factor == 0.0 and c.random.factor == 0.0:
             coef = c.value.written()
         else:
             coef = {"value": c.value.written(), "stagger": c.stagger.written(), "dimer": c.dimer.written()}
+            if c.random.factor != 0.0:
+                coef.update(random=c.random.written(), seed=0.0 if c.seed is None else c.seed.written())
         return {"product": self.product.text, "coef": coef, "add_conjugate": self.add_conjugate}
 
 

@@ -197,6 +197,22 @@ def _fit_window(g: np.ndarray, cutoff: float, window: tuple[int, int] | None) ->
     return r_min, r_max
 
 
+VANISHING_PARITY = 1e-3   # a parity this far below the other is zero up to noise (common practice)
+
+
+def _drop_vanishing_parity(r: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """The distances without the parity of r whose median g is below VANISHING_PARITY times the
+    other's: correlations that vanish exactly at every other r (the density correlations of
+    particle-hole symmetric free fermions, Peschel, J. Phys. A 36, L205 (2003)) are noise there in
+    variational data, and a fit of that noise would pass for a decay."""
+    medians = [float(np.median(g[r[r % 2 == p]])) if np.any(r % 2 == p) else np.nan for p in (0, 1)]
+    for p in (0, 1):
+        other = medians[1 - p]
+        if np.isfinite(medians[p]) and np.isfinite(other) and medians[p] < VANISHING_PARITY * other:
+            return r[r % 2 != p]
+    return r
+
+
 def correlation_length(corr: np.ndarray, window: tuple[int, int] | None = None,
                        edge: int | None = None, floor: float = 1e-8) -> dict:
     """Correlation length xi from the decay of connected correlations in the bulk.
@@ -256,6 +272,7 @@ def correlation_length(corr: np.ndarray, window: tuple[int, int] | None = None,
     r_min, r_max = _fit_window(g, cutoff, window)
     r = np.arange(max(r_min, 1), r_max + 1)
     r = r[g[r] > cutoff]
+    r = _drop_vanishing_parity(r, g)
     nan = float("nan")
     out = {"xi": float("inf"), "exponential": False, "xi_fit": nan, "prefactor_exponent": nan,
            "amplitude": nan, "amplitudes": [nan, nan], "residual": nan, "xi_pure": nan,

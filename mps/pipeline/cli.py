@@ -2,7 +2,8 @@
 
 Exit codes: 0 success; 2 bad input (a refused config field, a bad path or option: one line on
 stderr naming it, never a traceback); 1 internal failure (one line; the traceback too when the
-environment variable ``CHARGEWISE_DEBUG`` is set); 130 interrupted. Every verb except ``check``
+environment variable ``CHARGEWISE_DEBUG`` is set; for ``scan``: some points failed, each recorded in
+scan.csv); 130 interrupted. Every verb except ``check``
 is carried out by :mod:`mps.pipeline.runner`, imported only when that verb is used.
 """
 
@@ -18,7 +19,7 @@ from collections.abc import Callable, Sequence
 from typing import Any
 
 from mps import __version__
-from mps.pipeline.config import load_config
+from mps.pipeline.config import load_config, load_mapping
 from mps.pipeline.errors import InputError
 from mps.pipeline.schema import dump_config
 
@@ -106,8 +107,13 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _check(args: argparse.Namespace) -> int:
-    """Validate the config and print the resolved YAML to stdout."""
-    sys.stdout.write(dump_config(load_config(args.config)))
+    """Validate the config and print the resolved YAML to stdout (a scan: its points, then the config)."""
+    if "scan" in load_mapping(args.config):
+        from mps.pipeline.scan_run import describe
+
+        sys.stdout.write(describe(args.config))
+    else:
+        sys.stdout.write(dump_config(load_config(args.config)))
     sys.stdout.flush()
     return 0
 

@@ -43,6 +43,15 @@ from mps.pipeline.schema import (
 
 def load_config(path: str | os.PathLike[str]) -> RunConfig:
     """Read, validate and resolve the YAML config at ``path`` (safe loader; no code is executed)."""
+    data = load_mapping(path)
+    if "scan" in data:
+        raise ConfigError("scan", f"{path} describes a parameter scan; run it with 'chargewise scan {path}'")
+    return parse_config(data, default_name=Path(path).stem)
+
+
+def load_mapping(path: str | os.PathLike[str]) -> Mapping[str, Any]:
+    """The YAML mapping at ``path``, read with the safe loader; not yet validated (a scan config
+    is expanded into points first, see :mod:`mps.pipeline.scan_plan`)."""
     p = Path(path)
     where = str(path)
     try:
@@ -69,7 +78,7 @@ def load_config(path: str | os.PathLike[str]) -> RunConfig:
         raise ConfigError(
             where, f"must hold a mapping with keys {', '.join(TOP_KEYS)}, got {kind(data)}"
         )
-    return parse_config(data, default_name=p.stem)
+    return data
 
 
 def parse_config(data: Mapping[str, Any], default_name: str = "run") -> RunConfig:

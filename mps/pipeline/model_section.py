@@ -7,7 +7,9 @@ A written chain's terms, in the YAML form this module reads (see :mod:`models.wr
     terms:
       - product: "S^+(j) S^-(j+2)"      # operators on sites j + offset, in product order
         coef: 0.5*J2                    # a number, a coupling name (J2, -J2, 0.5*J2), or
-                                        # {value: .., stagger: .., dimer: ..} or {per_site: [..]}
+                                        # {value: .., stagger: .., dimer: .., random: .., seed: ..}
+                                        # or {per_site: [..]}; random: uniform disorder of that
+                                        # width, drawn from seed (a number or a coupling)
         add_conjugate: true                   # add the Hermitian conjugate [false]
 
 Every refusal is one line ``model.<field>: <what is wrong>``; terms that change a conserved
@@ -34,7 +36,7 @@ from mps.pipeline.fields import boolean, fmt, integer, kind, real, section, show
 from mps.pipeline.schema import MODEL_KEYS, ModelConfig
 
 TERM_KEYS = ("product", "coef", "add_conjugate")
-PATTERN_KEYS = ("value", "stagger", "dimer", "per_site")
+PATTERN_KEYS = ("value", "stagger", "dimer", "per_site", "random", "seed")
 _COUPLING_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
 
 
@@ -201,11 +203,18 @@ def _pattern(raw: Any, where: str) -> SitePattern:
             raise ConfigError(f"{where}.per_site", f"must be a non-empty list of numbers, got {kind(values)}")
         return SitePattern(per_site=tuple(_amount(v, f"{where}.per_site[{i}]") for i, v in enumerate(values)))
     if "value" not in sec:
-        raise ConfigError(f"{where}.value", "is required in a pattern (with stagger and/or dimer)")
+        raise ConfigError(f"{where}.value", "is required in a pattern (with stagger, dimer and/or random)")
     zero = Amount(0.0)
+    if "seed" in sec and "random" not in sec:
+        raise ConfigError(f"{where}.seed", "needs random: the width of the disorder it seeds")
+    seed = _amount(sec["seed"], f"{where}.seed") if "seed" in sec else None
+    if seed is not None and seed.name is None and not (seed.factor.is_integer() and seed.factor >= 0):
+        raise ConfigError(f"{where}.seed", f"must be an integer >= 0 or a coupling holding one, got {show(sec['seed'])}")
     return SitePattern(_amount(sec["value"], f"{where}.value"),
                        _amount(sec["stagger"], f"{where}.stagger") if "stagger" in sec else zero,
-                       _amount(sec["dimer"], f"{where}.dimer") if "dimer" in sec else zero)
+                       _amount(sec["dimer"], f"{where}.dimer") if "dimer" in sec else zero,
+                       random=_amount(sec["random"], f"{where}.random") if "random" in sec else zero,
+                       seed=seed)
 
 
 def _named_couplings(raw: Any) -> dict[str, float]:

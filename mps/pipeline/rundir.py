@@ -72,13 +72,19 @@ def write_json(path: Path, data: dict) -> None:
 
 
 def _alive(pid: int) -> bool:
+    """Is process ``pid`` running? A zombie (killed, not yet reaped: common in containers whose
+    first process does not reap orphans) counts as dead."""
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
         return False
     except PermissionError:
         return True
-    return True
+    try:
+        with open(f"/proc/{pid}/stat", encoding="ascii") as fh:
+            return fh.read().rsplit(")", 1)[1].split()[0] != "Z"
+    except (OSError, IndexError):
+        return True
 
 
 class RunLock:

@@ -17,6 +17,7 @@ import signal
 import sys
 import threading
 import time
+from collections.abc import Callable
 from dataclasses import replace
 from pathlib import Path
 
@@ -25,7 +26,7 @@ import numpy as np
 from mps import __version__
 from mps.analysis.correlations import local_expectations
 from mps.chain.mpo import Mpo, OperatorError, build_mpo
-from mps.chain.state import product_state, random_state
+from mps.chain.state import ChainState, product_state, random_state
 from mps.pipeline.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
 from mps.pipeline.config import config_hash, load_config
 from mps.pipeline.errors import InputError
@@ -149,8 +150,9 @@ class StopRequest:
 
 
 def _search(directory: Path, cfg: RunConfig, search: SectorSweeper, rng: np.random.Generator,
-            show: ProgressLine) -> int:
-    """Sweep to the end, checkpointing after each sweep; returns the exit code."""
+            show: ProgressLine, stop_also: Callable[[], bool] | None = None) -> int:
+    """Sweep to the end, checkpointing after each sweep; returns the exit code. ``stop_also`` is a
+    second stop request (a scan's stop file) honoured like the first Ctrl-C."""
     mhash, shash = config_hash(cfg.model), solver_hash(cfg)
     sweep_no = search.progress.sweep + 1
 
@@ -162,8 +164,9 @@ def _search(directory: Path, cfg: RunConfig, search: SectorSweeper, rng: np.rand
                         rng.bit_generator.state, mhash, shash)
 
     with StopRequest(show) as stop:
+        should_stop = stop if stop_also is None else (lambda: stop() or stop_also())
         try:
-            for rec in search.run(on_bond=on_bond, should_stop=stop):
+            for rec in search.run(on_bond=on_bond, should_stop=should_stop):
                 checkpoint()
                 write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
                 show.sweep(rec, len(search.progress.history))
@@ -182,7 +185,7 @@ def _search(directory: Path, cfg: RunConfig, search: SectorSweeper, rng: np.rand
 
 
 def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: SectorSweeper, seconds: float,
-            show: ProgressLine) -> None:
+            show: ProgressLine, note: dict | None = None) -> None:
     energy, variance = energy_and_variance(search.state, mpo)
     hist = search.progress.history
     summary = {
@@ -190,7 +193,7 @@ def _finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: SectorSweeper, se
         "energy": energy, "energy_per_site": energy / cfg.model.sites, "variance": variance,
         "converged": search.progress.converged, "sweeps": search.progress.sweep,
         "max_bond": max(search.state.bond_dims), "truncation": hist[-1].truncation if hist else 0.0,
-        "seconds": seconds, "version": __version__,
+        "seconds": seconds, "version": __version__, **(note or {}),
     }
     space = cfg.model.space()
     if space.cutoff is not None:
@@ -263,9 +266,17 @@ def run(config_path: str, out: str | None = None) -> int:
     cfg = load_config(config_path)
     if out is not None:
         cfg = replace(cfg, output=replace(cfg.output, dir=str(out)))
+    return run_config(cfg)
+
+
+def run_config(cfg: RunConfig, stream=None, stop: Callable[[], bool] | None = None,
+               initial: ChainState | None = None, note: dict | None = None) -> int:
+    """Run a validated config into ``cfg.output.dir``: progress to ``stream`` (default stderr), ``stop``
+    a further stop request, ``initial`` a starting state in the target sector instead of a random
+    or product one (a scan's warm start), ``note`` extra entries for summary.json."""
     directory = Path(cfg.output.dir)
     if cfg.solver.method == "exact":
-        return _run_exact(directory, cfg)
+        return _run_exact(directory, cfg, stream=stream)
     mpo = build_operator(cfg)
     if (directory / CHECKPOINT).exists():
         raise InputError(f"{directory}: already holds a run; continue it with "
@@ -276,31 +287,33 @@ def run(config_path: str, out: str | None = None) -> int:
         rng = np.random.default_rng(cfg.solver.seed)
         target = cfg.model.integer_charge()
         first = cfg.solver.stages[0].bond
-        if cfg.solver.init == "product":
+        if initial is not None:
+            state = initial
+        elif cfg.solver.init == "product":
             state = product_state(mpo.phys, cfg.model.sites, target)
         else:
             state = random_state(mpo.phys, cfg.model.sites, target, min(first, 16), rng)
         settings = sweep_settings(cfg)
         search = SectorSweeper(mpo, state, settings, rng)
-        show = ProgressLine(settings)
+        show = ProgressLine(settings, stream)
         show.say(f"{cfg.name}: {cfg.model.family}, {cfg.model.sites} sites, "
                  f"charge {cfg.model.charge}, operator bond {max(mpo.bond_dims)}")
         t0 = time.perf_counter()
-        code = _search(directory, cfg, search, rng, show)
+        code = _search(directory, cfg, search, rng, show, stop)
         if code:
             return code
-        _finish(directory, cfg, mpo, search, time.perf_counter() - t0, show)
+        _finish(directory, cfg, mpo, search, time.perf_counter() - t0, show, note)
     return 0
 
 
-def _run_exact(directory: Path, cfg: RunConfig, fresh: bool = True) -> int:
+def _run_exact(directory: Path, cfg: RunConfig, fresh: bool = True, stream=None) -> int:
     """A quadratic chain through the exact engines (``solver.method: exact``); see mps.pipeline.exact_run."""
     from mps.pipeline.exact_run import run_exact
 
     if fresh and ((directory / CHECKPOINT).exists() or (directory / SUMMARY).exists()):
         raise InputError(f"{directory}: already holds a run; choose another output.dir / --out")
     directory.mkdir(parents=True, exist_ok=True)
-    show = ProgressLine(sweep_settings(cfg))
+    show = ProgressLine(sweep_settings(cfg), stream)
     with RunLock(directory):
         write_text(directory / CONFIG, dump_config(cfg))
         report = run_exact(directory, cfg, show.say)
@@ -316,7 +329,8 @@ def _exact_config(directory: Path) -> RunConfig | None:
     return replace(cfg, output=replace(cfg.output, dir=str(directory))) if cfg.solver.method == "exact" else None
 
 
-def resume(directory: str) -> int:
+def resume(directory: str, stream=None, stop: Callable[[], bool] | None = None) -> int:
+    """Continue the run in ``directory`` from its checkpoint (``stream``, ``stop`` as for run_config)."""
     directory = Path(directory)
     if _exact_config(directory) is not None:
         raise InputError(f"{directory}: an exact run (solver.method: exact) has nothing to resume; run it again")
@@ -333,11 +347,11 @@ def resume(directory: str) -> int:
             progress.converged = False
         rng = _rng_from(rng_state, cfg.solver.seed)
         search = SectorSweeper(mpo, state, settings, rng, progress)
-        show = ProgressLine(settings)
+        show = ProgressLine(settings, stream)
         where = f", bond step {progress.step}" if progress.step else ""
         show.say(f"{cfg.name}: resuming after sweep {progress.sweep}{where} (stage {progress.stage + 1})")
         t0 = time.perf_counter()
-        code = _search(directory, cfg, search, rng, show)
+        code = _search(directory, cfg, search, rng, show, stop)
         if code:
             return code
         previous = sum(r.seconds for r in progress.history)
@@ -388,3 +402,10 @@ def compare(directory: str) -> int:
     with RunLock(directory):
         _compare_and_draw(directory, cfg, state, ProgressLine(sweep_settings(cfg)))
     return 0
+
+
+def scan(config_path: str, workers: int | None = None, scheduler: str | None = None) -> int:
+    """Run every point of a config's scan section (see mps.pipeline.scan_run)."""
+    from mps.pipeline.scan_run import scan as run_scan
+
+    return run_scan(config_path, workers, scheduler)

@@ -34,6 +34,7 @@ class ScanPoint:
     values: dict[str, Any]
     name: str
     config: dict
+    position: tuple[int, ...] = ()
 
 
 def scan_axes(scan: Any) -> list[dict[str, list]]:
@@ -95,8 +96,63 @@ def scan_points(data: Mapping[str, Any]) -> list[ScanPoint]:
         cfg.setdefault("output", {})
         cfg["output"] = dict(cfg["output"] or {}, dir=f"{out_dir}/{name}")
         cfg["name"] = f"{base.get('name', 'scan')}-{name}"
-        points.append(ScanPoint(index, values, name, cfg))
+        points.append(ScanPoint(index, values, name, cfg, tuple(combo)))
     return points
+
+
+def validate_points(data: Mapping[str, Any], points: list[ScanPoint], default_name: str = "scan") -> list:
+    """Every point's config validated (RunConfig records, in point order) before any point runs.
+
+    A refusal that concerns a scanned key is reported under the scan axis that set it, with the
+    value, e.g. ``scan.grid.model.couplings.Dleta: value 0.5: unknown key; allowed: ...``; any other
+    refusal is one of the base config and keeps its own field name.
+    """
+    from mps.pipeline.config import parse_config
+
+    parts = {key: part for part in ("grid", "paired") for key in ((data.get("scan") or {}).get(part) or {})}
+    configs = []
+    for point in points:
+        try:
+            configs.append(parse_config(point.config, default_name=default_name))
+        except ConfigError as exc:
+            for key, value in point.values.items():
+                if exc.field == key or exc.field.startswith(key + ".") or exc.field.startswith(key + "["):
+                    raise ConfigError(f"scan.{parts[key]}.{key}", f"value {show(value)}: {exc.message}") from None
+            raise
+    return configs
+
+
+def warm_axis(axes: list[dict[str, list]]) -> int | None:
+    """The axis along which points may start from a neighbour's state: the last axis of more than
+    one value whose keys are all couplings (sizes, charges and local spaces then agree along it);
+    None if there is none."""
+    for i in reversed(range(len(axes))):
+        keys, values = axes[i], next(iter(axes[i].values()))
+        if len(values) > 1 and all(k.startswith("model.couplings.") for k in keys):
+            return i
+    return None
+
+
+def warm_sources(points: list[ScanPoint], axes: list[dict[str, list]], workers: int) -> dict[int, int]:
+    """point index -> index of the neighbour it starts from (the previous point along the warm axis,
+    all other axes equal). Each line of points along that axis is cut into contiguous segments so
+    that at least ``workers`` segments run side by side; a segment's first point starts cold."""
+    axis = warm_axis(axes)
+    if axis is None:
+        return {}
+    lines: dict[tuple, list[ScanPoint]] = {}
+    for p in points:
+        lines.setdefault(p.position[:axis] + p.position[axis + 1:], []).append(p)
+    per_line = -(-max(workers, 1) // len(lines))
+    sources = {}
+    for line in lines.values():
+        line.sort(key=lambda p: p.position[axis])
+        segments = min(per_line, len(line))
+        bounds = {round(k * len(line) / segments) for k in range(segments)}
+        for j in range(1, len(line)):
+            if j not in bounds:
+                sources[line[j].index] = line[j - 1].index
+    return sources
 
 
 def point_name(values: Mapping[str, Any], index: int, taken: set[str]) -> str:
@@ -139,3 +195,11 @@ def _assign(cfg: dict, dotted: str, value: Any) -> None:
             raise ConfigError(f"scan: {dotted}", f"{'.'.join(keys[:i + 1])} is {show(nxt)}, not a mapping")
         node = nxt
     node[keys[-1]] = value
+
+
+def warm_start_enabled(scan: Mapping[str, Any]) -> bool:
+    """``scan.warm_start`` (default true): may points start from a finished neighbour's state?"""
+    value = scan.get("warm_start", True)
+    if not isinstance(value, bool):
+        raise ConfigError("scan.warm_start", f"must be true or false, got {show(value)}")
+    return value

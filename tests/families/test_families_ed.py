@@ -10,8 +10,10 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import yaml
 
-from mps.pipeline.config import parse_config
+from mps.pipeline.config import config_hash, parse_config
+from mps.pipeline.schema import dump_config
 from mps.solver.sweep import Stage, SweepSettings, energy_and_variance
 
 import reference_sites as ref
@@ -103,6 +105,22 @@ def test_written_chain_with_per_site_couplings():
     mpo, search = solve_written(model, EXACT)
     H, charges = ref.spin_half_graph(L, [(j, j + 1, bonds[j], bonds[j]) for j in range(L - 1)], fields)
     check_against_ed(search, mpo, H, charges, ref.spin_half().charges, (0.5,), (0.5,), L)
+
+
+def test_written_chain_with_seeded_random_fields():
+    # Random fields drawn by the chain itself ({random: W, seed: sample}); the reference draws the same
+    # fields with numpy's default_rng(sample) and diagonalises the Heisenberg chain with them.
+    L, W, sample = 8, 0.8, 5
+    terms = [{"product": "S^+(j) S^-(j+1)", "coef": 0.5, "add_conjugate": True},
+             {"product": "S^z(j) S^z(j+1)", "coef": 1.0},
+             {"product": "S^z(j)", "coef": {"value": 0.0, "random": "W", "seed": "sample"}}]
+    model = written("spin-half", L, {"W": W, "sample": sample}, {"Sz": 0}, terms)
+    again = parse_config(yaml.safe_load(dump_config(parse_config({"model": model.to_dict()})))).model
+    assert config_hash(again) == config_hash(model)    # the dumped config.yaml describes the same chain
+    fields = W * np.random.default_rng(sample).uniform(-1.0, 1.0, L)
+    mpo, search = solve_written(model, EXACT)
+    H, charges = ref.spin_half_graph(L, [(j, j + 1, 1.0, 1.0) for j in range(L - 1)], fields)
+    check_against_ed(search, mpo, H, charges, ref.spin_half().charges, (0.0,), (0.5,), L)
 
 
 def test_written_two_species_bosons():

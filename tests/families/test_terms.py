@@ -94,3 +94,16 @@ def test_product_charge():
     assert parse_product("c_up^+(j) c_dn(j+1)").charge(FERMION).tolist() == [0, 2]
     assert parse_product("S^+(j) S^+(j+1)").charge(SPIN).tolist() == [4]
     assert parse_product("S^+(j) S^-(j+1)").charge(SPIN).tolist() == [0]
+
+
+def test_random_pattern_is_seeded_uniform_disorder():
+    # Definition: value + random * u_j, u_j uniform in [-1, 1] from numpy's default_rng(seed)
+    # (numpy's PCG64 generator is the reference library for the draw).
+    c = {"W": 0.5, "sample": 3.0}
+    pattern = SitePattern(Amount(1.0), random=Amount(1.0, "W"), seed=Amount(1.0, "sample"))
+    np.testing.assert_array_equal(pattern.values(6, c),
+                                  1.0 + 0.5 * np.random.default_rng(3).uniform(-1.0, 1.0, 6))
+    assert pattern.names() == {"W", "sample"}
+    assert not np.array_equal(pattern.values(6, c), pattern.values(6, {**c, "sample": 4.0}))
+    with pytest.raises(TermError, match="disorder seed must be an integer >= 0"):
+        pattern.values(6, {**c, "sample": 1.5})
