@@ -15,23 +15,17 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property, lru_cache
+from itertools import accumulate
 
 import numpy as np
+
+from mps.blocks.kernels import fuse_sectors
 
 _MAX_CHARGES = 3
 _SHIFT = 21
 _BIAS = 1 << (_SHIFT - 1)
 
 Charge = tuple[int, ...]
-
-
-def encode(charges: np.ndarray) -> np.ndarray:
-    """Pack integer charge vectors of shape (..., k), k <= 3, |q| < 2^20, into single int64 keys."""
-    charges = np.asarray(charges, dtype=np.int64)
-    key = np.zeros(charges.shape[:-1], dtype=np.int64)
-    for i in range(charges.shape[-1]):
-        key |= (charges[..., i] + _BIAS) << (_SHIFT * i)
-    return key
 
 
 @dataclass(frozen=True)
@@ -91,14 +85,17 @@ class Leg:
         return np.array(self.charges, dtype=np.int64).reshape(self.nsec, self.nq)
 
     @cached_property
+    def max_charge(self) -> int:
+        return max(abs(c) for q in self.charges for c in q)
+
+    @cached_property
+    def size_array(self) -> np.ndarray:
+        return np.array(self.sizes, dtype=np.int64)
+
+    @cached_property
     def offsets(self) -> np.ndarray:
         """Start of every sector in the dense index, plus the total dimension at the end."""
         return np.concatenate([[0], np.cumsum(self.sizes, dtype=np.int64)])
-
-    @cached_property
-    def _lookup(self) -> dict[int, int]:
-        """Encoded charge -> sector index (for vectorised look-ups)."""
-        return {int(k): i for i, k in enumerate(encode(self.charge_array))}
 
     @cached_property
     def _sector_of(self) -> dict[Charge, int]:
@@ -145,13 +142,50 @@ def leg_from_states(state_charges: np.ndarray, flow: int) -> tuple[Leg, np.ndarr
 class FusionMap:
     """Where every combination of sectors of a group of legs sits inside the fused leg.
 
-    ``entries[combo] = (fused sector index, offset, shape)`` for every combination ``combo`` (tuple
-    of sector indices, one per leg) whose block is non-empty; ``fused`` is the resulting leg.
+    ``combos`` (n, nlegs) lists every combination of sector indices whose block is non-empty, sorted
+    by its mixed-radix code (:meth:`codes_of`); ``sector`` and ``offset`` give its fused sector and
+    its offset inside that sector. :meth:`locate` looks many combinations up at once (the
+    contraction planner); ``entries[combo] = (fused sector, offset, shape)`` is the same as a dict.
     """
 
     legs: tuple[Leg, ...]
     fused: Leg
-    entries: dict[tuple[int, ...], tuple[int, int, tuple[int, ...]]]
+    combos: np.ndarray
+    codes: np.ndarray
+    sector: np.ndarray
+    offset: np.ndarray
+
+    @cached_property
+    def radix(self) -> np.ndarray:
+        """Multipliers of the mixed-radix code of a combination (C order over the legs)."""
+        return mixed_radix([leg.nsec for leg in self.legs])
+
+    def codes_of(self, combos: np.ndarray) -> np.ndarray:
+        combos = np.asarray(combos, dtype=np.int64)
+        return combos.reshape(len(combos), len(self.legs)) @ self.radix
+
+    @cached_property
+    def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """(codes in increasing order, sector, offset, radix, fused sizes) for compiled look-ups."""
+        return self.codes, self.sector, self.offset, self.radix, self.fused.size_array
+
+    def locate(self, combos: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(fused sector, offset) of each row of ``combos``; sector -1 for a combination not present."""
+        codes = self.codes_of(combos)
+        if not len(self.codes):
+            return np.full(len(codes), -1, dtype=np.int64), np.zeros(len(codes), dtype=np.int64)
+        pos = np.minimum(np.searchsorted(self.codes, codes), len(self.codes) - 1)
+        hit = self.codes[pos] == codes
+        return np.where(hit, self.sector[pos], -1), np.where(hit, self.offset[pos], 0)
+
+    @cached_property
+    def entries(self) -> dict[tuple[int, ...], tuple[int, int, tuple[int, ...]]]:
+        sizes = [np.asarray(leg.sizes, dtype=np.int64) for leg in self.legs]
+        shapes = np.stack([s[self.combos[:, i]] for i, s in enumerate(sizes)], axis=1) if self.legs else \
+            np.zeros((len(self.combos), 0), dtype=np.int64)
+        return {combo: (s, off, shape) for combo, s, off, shape in
+                zip(map(tuple, self.combos.tolist()), self.sector.tolist(), self.offset.tolist(),
+                    map(tuple, shapes.tolist()))}
 
     def combos_of(self, sector: int) -> list[tuple[int, ...]]:
         """Combinations that make up one fused sector, in offset order."""
@@ -165,17 +199,35 @@ class FusionMap:
         return out
 
 
-def combined_charges(legs: tuple[Leg, ...]) -> tuple[np.ndarray, np.ndarray]:
-    """All sector combinations of ``legs`` and their combined charge sum_i f_i q_i.
+def pack_legs(legs: tuple[Leg, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Sectors of several legs as flat arrays for the compiled kernels: (charges, sizes, starts,
+    flows), the sectors of leg i being rows starts[i]:starts[i+1]."""
+    starts = np.array([0, *accumulate(leg.nsec for leg in legs)], dtype=np.int64)
+    return (np.concatenate([leg.charge_array for leg in legs]), np.concatenate([leg.size_array for leg in legs]),
+            starts, np.array([leg.flow for leg in legs], dtype=np.int64))
 
-    Returns ``combos`` of shape (ncombo, nlegs) (lexicographic order) and charges (ncombo, k).
-    """
-    grids = np.meshgrid(*[np.arange(leg.nsec) for leg in legs], indexing="ij")
-    combos = np.stack([g.ravel() for g in grids], axis=1)
-    total = np.zeros((combos.shape[0], legs[0].nq), dtype=np.int64)
-    for i, leg in enumerate(legs):
-        total += leg.flow * leg.charge_array[combos[:, i]]
-    return combos, total
+
+def charge_bound(legs: tuple[Leg, ...]) -> int:
+    """Largest |combined charge| a combination of sectors of ``legs`` can reach."""
+    return sum(leg.max_charge for leg in legs)
+
+
+def leg_of_arrays(charges: np.ndarray, sizes: np.ndarray, flow: int) -> Leg:
+    """A leg from sorted (nsec, k) charges and sizes, as produced by the kernels (which sort the
+    sectors and keep charges in range, so the validation of :class:`Leg` is skipped)."""
+    leg = object.__new__(Leg)
+    for name, value in (("charges", tuple(map(tuple, charges.tolist()))), ("sizes", tuple(sizes.tolist())),
+                        ("flow", int(flow))):
+        object.__setattr__(leg, name, value)
+    return leg
+
+
+def mixed_radix(nsec: list[int]) -> np.ndarray:
+    """Multipliers r_i = prod_{j > i} nsec_j that turn sector keys into increasing integer codes."""
+    radix = [1] * len(nsec)
+    for i in range(len(nsec) - 2, -1, -1):
+        radix[i] = radix[i + 1] * nsec[i + 1]
+    return np.array(radix, dtype=np.int64)
 
 
 @lru_cache(maxsize=4096)
@@ -188,28 +240,12 @@ def fuse(legs: tuple[Leg, ...], flow: int = 1) -> FusionMap:
     """
     if not legs:
         raise ValueError("fuse needs at least one leg")
-    combos, total = combined_charges(legs)
-    sizes = np.ones(combos.shape[0], dtype=np.int64)
-    for i, leg in enumerate(legs):
-        sizes *= np.asarray(leg.sizes, dtype=np.int64)[combos[:, i]]
-    keep = sizes > 0
-    combos, total, sizes = combos[keep], flow * total[keep], sizes[keep]
+    if charge_bound(legs) >= _BIAS:
+        raise ValueError(f"fused charges must be smaller than {_BIAS} in magnitude")
+    combos, codes, sector, offset, charges, sizes = fuse_sectors(*pack_legs(legs), flow, _SHIFT, _BIAS)
     if combos.shape[0] == 0:  # every combination is empty: a single empty sector
-        return FusionMap(legs, Leg(((0,) * legs[0].nq,), (0,), flow), {})
-    order = np.lexsort(np.concatenate([combos.T[::-1], total.T[::-1]], axis=0))
-    combos, total, sizes = combos[order], total[order], sizes[order]
-    new_sector = np.concatenate([[True], np.any(total[1:] != total[:-1], axis=1)])
-    sector_id = np.cumsum(new_sector) - 1
-    starts = np.flatnonzero(new_sector)
-    csum = np.cumsum(sizes) - sizes
-    offsets = csum - csum[starts][sector_id]
-    fused_sizes = np.add.reduceat(sizes, starts)
-    fused = Leg(tuple(tuple(int(c) for c in row) for row in total[starts]),
-                tuple(int(s) for s in fused_sizes), flow)
-    shapes = np.stack([np.asarray(leg.sizes, dtype=np.int64)[combos[:, i]] for i, leg in enumerate(legs)], axis=1)
-    entries = {combo: (s, off, shape) for combo, s, off, shape in
-               zip(map(tuple, combos.tolist()), sector_id.tolist(), offsets.tolist(), map(tuple, shapes.tolist()))}
-    return FusionMap(legs, fused, entries)
+        return FusionMap(legs, Leg(((0,) * legs[0].nq,), (0,), flow), combos, codes, sector, offset)
+    return FusionMap(legs, leg_of_arrays(charges, sizes, flow), combos, codes, sector, offset)
 
 
 def reachable_totals(local: np.ndarray, sites: int) -> np.ndarray:
@@ -240,5 +276,5 @@ def reachable_charges(site_charges: np.ndarray, sites: int) -> set[Charge]:
     return {tuple(int(c) for c in row) for row in reachable_totals(site_charges, sites)}
 
 
-__all__ = ["Leg", "FusionMap", "fuse", "leg_from_states", "combined_charges", "encode",
+__all__ = ["Leg", "FusionMap", "fuse", "pack_legs", "charge_bound", "mixed_radix", "leg_of_arrays", "leg_from_states",
            "reachable_charges", "reachable_totals"]

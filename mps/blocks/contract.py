@@ -12,26 +12,22 @@ applies the same operator many times pays for it once.
 
 from __future__ import annotations
 
-import math
+import time
 from collections import OrderedDict
 from dataclasses import dataclass
+from functools import cached_property
 from typing import NamedTuple
 
 import numpy as np
 
 from mps.blocks.charges import FusionMap, Leg, fuse
+from mps.blocks.kernels import small_products
+from mps.blocks.plan_kernel import plan_maps
 from mps.blocks.tensor import BlockTensor, layout
 
-
-@dataclass(frozen=True)
-class _Part:
-    """One stored block and the rectangle it occupies in a group matrix."""
-
-    block: int
-    row: int
-    col: int
-    nrow: int
-    ncol: int
+SMALL_GEMM = 2048
+"""Largest group (multiply-adds) done by the compiled loop: measured crossover with one numpy
+matmul call per group on the development machine lies between 12^3 and 16^3."""
 
 
 @dataclass(frozen=True)
@@ -62,24 +58,41 @@ class ContractionPlan:
 
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]
-    groups: tuple[_Group, ...]
+    group_array: np.ndarray           # (ngroups, 6): the fields of :class:`_Group`
     gather_a: np.ndarray | None
     gather_b: np.ndarray | None
     out_from_packed: np.ndarray | None
     packed_size: int
     out_size: int
 
+    @cached_property
+    def groups(self) -> tuple[_Group, ...]:
+        return tuple(_Group(*g) for g in self.group_array.tolist())
+
+    @cached_property
+    def small(self) -> np.ndarray:
+        """Groups of at most ``SMALL_GEMM`` multiply-adds, multiplied by one compiled loop."""
+        g = self.group_array
+        return g[g[:, 0] * g[:, 1] * g[:, 2] <= SMALL_GEMM]
+
+    @cached_property
+    def large(self) -> tuple[_Group, ...]:
+        """The other groups, one BLAS call each."""
+        return tuple(g for g in self.groups if g.nrow * g.nmid * g.ncol > SMALL_GEMM)
+
     @property
     def flops(self) -> int:
         """Real multiply-adds times two, counted from the group shapes."""
-        return sum(2 * g.nrow * g.nmid * g.ncol for g in self.groups)
+        g = self.group_array
+        return 2 * int(np.sum(g[:, 0] * g[:, 1] * g[:, 2]))
 
 
 def _fusion(legs: tuple[Leg, ...], k: int) -> FusionMap:
     if legs:
         return fuse(legs, 1)
     trivial = Leg(((0,) * k,), (1,), 1)
-    return FusionMap((), trivial, {(): (0, 0, ())})
+    zero = np.zeros(1, dtype=np.int64)
+    return FusionMap((), trivial, np.zeros((1, 0), dtype=np.int64), zero, zero, zero)
 
 
 def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
@@ -94,9 +107,13 @@ def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
 
 
 def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
-                     b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
-                     ) -> ContractionPlan:
-    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B."""
+                b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
+                ) -> ContractionPlan:
+    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B.
+
+    The fusion maps and layouts are cached per structure; the groups and the entry-by-entry
+    maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_maps`).
+    """
     _check_pairs(a_legs, axes_a, b_legs, axes_b)
     k = a_legs[0].nq
     free_a = tuple(i for i in range(len(a_legs)) if i not in axes_a)
@@ -104,47 +121,32 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     fa = _fusion(tuple(a_legs[i] for i in free_a), k)
     fb = _fusion(tuple(b_legs[i] for i in free_b), k)
     fm = _fusion(tuple(a_legs[i] for i in axes_a), k)
-    qa, qb = np.asarray(a_charge), np.asarray(b_charge)
-
     lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
-    a_parts = _parts(lay_a, free_a, axes_a, fa, fm, rows_first=True)
-    b_parts = _parts(lay_b, axes_b, free_b, fm, fb, rows_first=False)
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
-    out_charge = tuple(int(c) for c in qa + qb)
-    out_parts: dict[int, list[_Part]] = {}
-    if out_legs:
-        lay_o = layout(out_legs, out_charge)
-        na = len(free_a)
-        mid_of = [fm.fused.index(tuple(int(x) for x in qa - np.asarray(q))) for q in fa.fused.charges]
-        for bi, key in enumerate(lay_o.keys):
-            rs, ro, rshape = fa.entries[key[:na]]
-            cs, co, cshape = fb.entries[key[na:]]
-            out_parts.setdefault(mid_of[rs], []).append(_Part(bi, ro, co, _size(rshape), _size(cshape)))
-    groups = []
-    ga, gb, sc = [], [], []
-    pa = pb = pc = 0
-    for ms in sorted(set(a_parts) & set(b_parts)):
-        c = np.asarray(fm.fused.charges[ms])
-        rs = fa.fused.index(tuple(qa - c))
-        cs = fb.fused.index(tuple(qb + c))
-        if rs < 0 or cs < 0:
-            continue
-        g = _Group(fa.fused.sizes[rs], fm.fused.sizes[ms], fb.fused.sizes[cs], pa, pb, pc)
-        groups.append(g)
-        ga.append(_gather(lay_a, a_parts[ms], free_a + tuple(axes_a), g.nrow, g.nmid))
-        gb.append(_gather(lay_b, b_parts[ms], tuple(axes_b) + free_b, g.nmid, g.ncol))
-        if out_legs:
-            sc.append(_gather(lay_o, out_parts.get(ms, ()), tuple(range(len(out_legs))), g.nrow, g.ncol))
-        pa, pb, pc = pa + g.nrow * g.nmid, pb + g.nmid * g.ncol, pc + g.nrow * g.ncol
-    out_size = lay_o.size if out_legs else 1
-    out_from = None
-    if out_legs:
-        scatter = np.concatenate(sc) if sc else np.zeros(0, dtype=np.int64)
-        if not (scatter.size == out_size and np.array_equal(scatter, np.arange(out_size))):
-            out_from = np.full(out_size, pc, dtype=np.intp)     # pc = the zero slot
-            out_from[scatter] = np.arange(scatter.size, dtype=np.intp)
-    return ContractionPlan(out_legs, out_charge, tuple(groups), _index(ga, lay_a.size),
-                           _index(gb, lay_b.size), out_from, pc, out_size)
+    out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
+    lay_o = layout(out_legs, out_charge) if out_legs else None
+    groups, gather_a, gather_b, spots, flags = plan_maps(
+        _arrays(lay_a), _axes(free_a), _axes(axes_a), _arrays(lay_b), _axes(axes_b), _axes(free_b),
+        _arrays(lay_o), len(free_a), fa.arrays, fm.arrays, fb.arrays)
+    if flags[1] or flags[3]:
+        raise AssertionError("contraction plan left a hole in a group matrix")
+    pc = int(groups[:, 0] @ groups[:, 2]) if len(groups) else 0
+    out_from = spots if out_legs and not flags[4] else None
+    return ContractionPlan(out_legs, out_charge, groups,
+                           None if flags[0] else gather_a.astype(np.intp, copy=False),
+                           None if flags[2] else gather_b.astype(np.intp, copy=False),
+                           out_from, pc, lay_o.size if out_legs else 1)
+
+
+_NO_BLOCKS = (np.zeros((0, 0), dtype=np.int64), np.zeros((0, 0), dtype=np.int64), np.zeros(1, dtype=np.int64))
+
+
+def _arrays(lay) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    return _NO_BLOCKS if lay is None else (lay.key_array, lay.shape_array, lay.offsets)
+
+
+def _axes(axes: tuple[int, ...]) -> np.ndarray:
+    return np.array(axes, dtype=np.int64)
 
 
 class CacheInfo(NamedTuple):
@@ -152,6 +154,7 @@ class CacheInfo(NamedTuple):
     misses: int
     plans: int
     nbytes: int
+    build_seconds: float
 
 
 class PlanCache:
@@ -166,6 +169,7 @@ class PlanCache:
         self.build, self.max_bytes = build, max_bytes
         self.plans: OrderedDict = OrderedDict()
         self.nbytes = self.hits = self.misses = 0
+        self.build_seconds = 0.0      # wall time spent building plans (the bench's planning share)
 
     @staticmethod
     def weight(plan: ContractionPlan) -> int:
@@ -178,7 +182,9 @@ class PlanCache:
             self.plans.move_to_end(key)
             return plan
         self.misses += 1
+        t0 = time.perf_counter()
         plan = self.build(*key)
+        self.build_seconds += time.perf_counter() - t0
         self.plans[key] = plan
         self.nbytes += self.weight(plan)
         while self.nbytes > self.max_bytes and len(self.plans) > 1:
@@ -187,7 +193,7 @@ class PlanCache:
         return plan
 
     def cache_info(self) -> CacheInfo:
-        return CacheInfo(self.hits, self.misses, len(self.plans), self.nbytes)
+        return CacheInfo(self.hits, self.misses, len(self.plans), self.nbytes, self.build_seconds)
 
     def cache_clear(self) -> None:
         self.plans.clear()
@@ -199,43 +205,6 @@ plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
 ``plan_contraction(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)``."""
 
 
-def _size(shape) -> int:
-    return math.prod(shape)
-
-
-def _parts(lay, row_axes, col_axes, frow, fcol, rows_first: bool) -> dict[int, list[_Part]]:
-    """Place every block of a layout in its group matrix; group = fused sector of the middle legs."""
-    parts: dict[int, list[_Part]] = {}
-    for bi, key in enumerate(lay.keys):
-        rs, ro, rshape = frow.entries[tuple(key[i] for i in row_axes)]
-        cs, co, cshape = fcol.entries[tuple(key[i] for i in col_axes)]
-        group = cs if rows_first else rs
-        parts.setdefault(group, []).append(_Part(bi, ro, co, _size(rshape), _size(cshape)))
-    return parts
-
-
-def _gather(lay, parts, perm, nrow: int, ncol: int) -> np.ndarray:
-    """Flat-data position of every entry of one group matrix (-1 where no block covers it)."""
-    idx = np.full((nrow, ncol), -1, dtype=np.int64)
-    for p in parts:
-        start = int(lay.offsets[p.block])
-        block = np.arange(start, start + p.nrow * p.ncol, dtype=np.int64).reshape(lay.shapes[p.block])
-        idx[p.row:p.row + p.nrow, p.col:p.col + p.ncol] = block.transpose(perm).reshape(p.nrow, p.ncol)
-    return idx.ravel()
-
-
-def _index(pieces: list[np.ndarray], size: int) -> np.ndarray | None:
-    """Concatenate gather pieces; None when they are the identity (no copy needed)."""
-    if not pieces:
-        return np.zeros(0, dtype=np.int64)
-    idx = np.concatenate(pieces)
-    if idx.size == size and np.array_equal(idx, np.arange(size)):
-        return None
-    if np.any(idx < 0):
-        raise AssertionError("contraction plan left a hole in a group matrix")
-    return idx.astype(np.intp)
-
-
 def _packed(data: np.ndarray, gather: np.ndarray | None) -> np.ndarray:
     return data if gather is None else np.take(data, gather)
 
@@ -245,7 +214,9 @@ def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype,
     """All group products of packed operands, into a packed buffer ending with one zero."""
     pc = np.empty(plan.packed_size + 1, dtype=dtype) if out is None else out
     pc[-1] = 0
-    for g in plan.groups:
+    if len(plan.small):
+        small_products(pa, pb, pc, plan.small)
+    for g in plan.large:
         np.matmul(pa[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
                   pb[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
                   out=pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))

@@ -21,6 +21,8 @@ import numpy as np
 import scipy.linalg as sla
 
 from mps.blocks.charges import FusionMap, Leg, fuse
+from mps.blocks.kernels import leg_positions
+from mps.blocks.plan_kernel import sector_map
 from mps.blocks.tensor import BlockTensor
 
 
@@ -37,43 +39,61 @@ class MatrixBlocks:
 
 
 def as_matrix(t: BlockTensor, row_axes, col_axes) -> MatrixBlocks:
-    """Pack ``t`` into one dense matrix per charge sector of the fused row legs."""
+    """Pack ``t`` into one dense matrix per charge sector of the fused row legs.
+
+    Row sector r pairs with the column sector of charge Q - r; the matrices are views into one
+    buffer filled by a single gather (entries no block covers read a zero).
+    """
     row_axes, col_axes = tuple(row_axes), tuple(col_axes)
     if sorted(row_axes + col_axes) != list(range(t.ndim)) or not row_axes or not col_axes:
         raise ValueError("row and column axes must split the legs into two non-empty groups")
     rows = fuse(tuple(t.legs[i] for i in row_axes), 1)
     cols = fuse(tuple(t.legs[i] for i in col_axes), 1)
-    perm = row_axes + col_axes
     q = np.asarray(t.charge)
-    found: dict[int, tuple[int, np.ndarray]] = {}
-    for key, view in t.blocks():
-        rs, ro, rshape = rows.entries[tuple(key[i] for i in row_axes)]
-        cs, co, cshape = cols.entries[tuple(key[i] for i in col_axes)]
-        if rs not in found:
-            found[rs] = (cs, np.zeros((rows.fused.sizes[rs], cols.fused.sizes[cs]), dtype=t.dtype))
-        nr, nc = int(np.prod(rshape)), int(np.prod(cshape))
-        found[rs][1][ro:ro + nr, co:co + nc] = view.transpose(perm).reshape(nr, nc)
-    # sectors with no stored block (all combinations empty) still need a zero matrix if both sides exist
-    for rs, rq in enumerate(rows.fused.charges):
-        cs = cols.fused.index(tuple(q - np.asarray(rq)))
-        if rs not in found and cs >= 0 and rows.fused.sizes[rs] and cols.fused.sizes[cs]:
-            found[rs] = (cs, np.zeros((rows.fused.sizes[rs], cols.fused.sizes[cs]), dtype=t.dtype))
-    keys = sorted(found)
-    return MatrixBlocks(rows, cols, row_axes, col_axes, tuple((rs, found[rs][0]) for rs in keys),
-                        tuple(found[rs][1] for rs in keys))
+    sectors = [(rs, cs) for rs, rq in enumerate(rows.fused.charges)
+               if (cs := cols.fused.index(tuple(q - np.asarray(rq)))) >= 0
+               and rows.fused.sizes[rs] and cols.fused.sizes[cs]]
+    shapes = [(rows.fused.sizes[rs], cols.fused.sizes[cs]) for rs, cs in sectors]
+    start, ld, total = _sector_starts(rows.fused.nsec, [rs for rs, _ in sectors], shapes)
+    gather = sector_map(_arrays(t), _axes(row_axes), _axes(col_axes), rows.arrays, cols.arrays,
+                        start, ld, total, False)
+    buf = np.append(t.data, np.zeros(1, dtype=t.dtype))[gather]     # -1 reads the appended zero
+    mats, pos = [], 0
+    for nr, nc in shapes:
+        mats.append(buf[pos:pos + nr * nc].reshape(nr, nc))
+        pos += nr * nc
+    return MatrixBlocks(rows, cols, row_axes, col_axes, tuple(sectors), tuple(mats))
 
 
-def _unpack_rows(fmap: FusionMap, sector: int, mat: np.ndarray, bond_sector: int, out: BlockTensor,
-                 bond_last: bool) -> None:
-    """Cut the rows of a (fused sector x bond) matrix back into the blocks of ``out``."""
-    for combo in fmap.combos_of(sector):
-        _, off, shape = fmap.entries[combo]
-        n = int(np.prod(shape))
-        piece = mat[off:off + n]
-        if bond_last:
-            out.get(combo + (bond_sector,))[...] = piece.reshape(shape + (mat.shape[1],))
-        else:
-            out.get((bond_sector,) + combo)[...] = piece.T.reshape((mat.shape[1],) + shape)
+def _arrays(t: BlockTensor) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    lay = t.layout
+    return lay.key_array, lay.shape_array, lay.offsets
+
+
+def _axes(axes) -> np.ndarray:
+    return np.array(axes, dtype=np.int64)
+
+
+def _sector_starts(nsec: int, owners: list[int], shapes: list[tuple[int, int]]):
+    """Start and column count of the matrix of every row sector (-1: none), and the total size."""
+    start = np.full(nsec, -1, dtype=np.int64)
+    ld = np.zeros(nsec, dtype=np.int64)
+    pos = 0
+    for s, (nr, nc) in zip(owners, shapes):
+        start[s], ld[s] = pos, nc
+        pos += nr * nc
+    return start, ld, pos
+
+
+def _fill(out: BlockTensor, row_axes, col_axes, f_row, f_col, owners, mats) -> None:
+    """Write dense matrices (one per row sector in ``owners``) into the blocks of ``out``."""
+    start, ld, total = _sector_starts(f_row.fused.nsec, owners, [m.shape for m in mats])
+    spots = sector_map(_arrays(out), _axes(row_axes), _axes(col_axes), f_row.arrays, f_col.arrays,
+                       start, ld, total, True)
+    if np.any(spots < 0):
+        raise AssertionError("a block of the factor has no matrix to come from")
+    packed = np.concatenate([m.ravel() for m in mats]) if mats else np.zeros(0, dtype=out.dtype)
+    np.take(packed, spots, out=out.data)
 
 
 def _bond_leg(mb: MatrixBlocks, kept: list[int], flow: int) -> tuple[Leg, list[int]]:
@@ -89,12 +109,13 @@ def _factors(mb: MatrixBlocks, t: BlockTensor, lefts, rights, kept) -> tuple[Blo
     """Assemble left factor (row legs + bond) and right factor (bond + column legs)."""
     bond, used = _bond_leg(mb, kept, -1)
     dtype = np.result_type(*[m.dtype for m in lefts], *[m.dtype for m in rights])
+    nr = len(mb.row_axes)
     left = BlockTensor(tuple(t.legs[i] for i in mb.row_axes) + (bond,), None, dtype=dtype)
     right = BlockTensor((bond.dual(),) + tuple(t.legs[i] for i in mb.col_axes), t.charge, dtype=dtype)
-    for b, i in enumerate(used):
-        rs, cs = mb.sectors[i]
-        _unpack_rows(mb.rows, rs, lefts[i][:, :kept[i]], b, left, bond_last=True)
-        _unpack_rows(mb.cols, cs, rights[i][:kept[i]].T, b, right, bond_last=False)
+    _fill(left, range(nr), (nr,), mb.rows, fuse((bond,), 1), [mb.sectors[i][0] for i in used],
+          [np.asarray(lefts[i][:, :kept[i]], dtype=dtype) for i in used])
+    _fill(right, (0,), range(1, len(mb.col_axes) + 1), fuse((bond.dual(),), 1), mb.cols,
+          list(range(len(used))), [np.asarray(rights[i][:kept[i]], dtype=dtype) for i in used])
     return left, right
 
 
@@ -203,10 +224,7 @@ def eigh(t: BlockTensor, row_axes, col_axes) -> tuple[tuple[np.ndarray, ...], Bl
 
 def scale_leg(t: BlockTensor, axis: int, values) -> BlockTensor:
     """Multiply ``t`` along leg ``axis`` by a per-sector vector (e.g. singular values)."""
-    out = t.astype(np.result_type(t.dtype, *[np.asarray(v).dtype for v in values]))
-    shape_fix = [1] * t.ndim
-    for key, view in out.blocks():
-        v = np.asarray(values[key[axis]])
-        shape_fix[axis] = v.shape[0]
-        view *= v.reshape(shape_fix)
-    return out
+    v = np.concatenate([np.asarray(x) for x in values]) if len(values) else np.zeros(0)
+    lay = t.layout
+    pos = leg_positions(lay.key_array, lay.shape_array, lay.offsets, axis, t.legs[axis].offsets)
+    return BlockTensor(t.legs, t.charge, t.data * v[pos])

@@ -11,23 +11,28 @@ structure (cached).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cached_property, lru_cache
 
 import numpy as np
 
-from mps.blocks.charges import Leg, combined_charges, encode
+from mps.blocks.charges import _BIAS, _SHIFT, Leg, charge_bound, mixed_radix, pack_legs
+from mps.blocks.kernels import allowed_blocks, block_map
 
 
 @dataclass(frozen=True)
 class Layout:
-    """Allowed blocks of a structure and where each lives in the flat data array."""
+    """Allowed blocks of a structure and where each lives in the flat data array.
+
+    ``key_array`` (nblocks, nlegs) holds the sector indices of every block, ``shape_array`` its
+    shape, ``offsets`` its start (plus the total size at the end); ``keys``, ``shapes`` and
+    ``index`` are the same as tuples and a dict, built on first use.
+    """
 
     legs: tuple[Leg, ...]
     charge: tuple[int, ...]
-    keys: tuple[tuple[int, ...], ...]
-    shapes: tuple[tuple[int, ...], ...]
+    key_array: np.ndarray
+    shape_array: np.ndarray
     offsets: np.ndarray
-    index: dict[tuple[int, ...], int]
 
     @property
     def size(self) -> int:
@@ -35,7 +40,19 @@ class Layout:
 
     @property
     def nblocks(self) -> int:
-        return len(self.keys)
+        return len(self.key_array)
+
+    @cached_property
+    def keys(self) -> tuple[tuple[int, ...], ...]:
+        return tuple(map(tuple, self.key_array.tolist()))
+
+    @cached_property
+    def shapes(self) -> tuple[tuple[int, ...], ...]:
+        return tuple(map(tuple, self.shape_array.tolist()))
+
+    @cached_property
+    def index(self) -> dict[tuple[int, ...], int]:
+        return {key: i for i, key in enumerate(self.keys)}
 
 
 @lru_cache(maxsize=8192)
@@ -46,27 +63,10 @@ def layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
     k = legs[0].nq
     if any(leg.nq != k for leg in legs) or len(charge) != k:
         raise ValueError("all legs and the total charge must have the same number of charges")
-    if len(legs) == 1:
-        hit = np.all(legs[0].flow * legs[0].charge_array == np.asarray(charge)[None, :], axis=1)
-        combos = np.flatnonzero(hit)[:, None]
-    else:
-        head, total = combined_charges(legs[:-1])
-        last = legs[-1]
-        need = last.flow * (np.asarray(charge, dtype=np.int64)[None, :] - total)
-        lookup = last._lookup
-        idx = np.array([lookup.get(int(c), -1) for c in encode(need)], dtype=np.int64) \
-            if len(need) else np.zeros(0, dtype=np.int64)
-        ok = idx >= 0
-        combos = np.concatenate([head[ok], idx[ok][:, None]], axis=1)
-    dims = np.stack([np.asarray(leg.sizes, dtype=np.int64)[combos[:, i]] for i, leg in enumerate(legs)],
-                    axis=1) if combos.size else np.zeros((0, len(legs)), dtype=np.int64)
-    nonempty = np.all(dims > 0, axis=1)
-    keys = list(map(tuple, combos[nonempty].tolist()))
-    shapes = list(map(tuple, dims[nonempty].tolist()))
-    sizes = np.prod(dims[nonempty], axis=1) if keys else np.zeros(0, dtype=np.int64)
-    offsets = np.concatenate([[0], np.cumsum(sizes, dtype=np.int64)]).astype(np.int64)
-    return Layout(legs, tuple(charge), tuple(keys), tuple(shapes), offsets,
-                  {kk: i for i, kk in enumerate(keys)})
+    if charge_bound(legs) + max(map(abs, charge)) >= _BIAS:
+        raise ValueError(f"charges must be smaller than {_BIAS} in magnitude")
+    keys, shapes, offsets = allowed_blocks(*pack_legs(legs), np.asarray(charge, dtype=np.int64), _SHIFT, _BIAS)
+    return Layout(legs, tuple(charge), keys, shapes, offsets)
 
 
 class BlockTensor:
@@ -220,14 +220,20 @@ class BlockTensor:
             raise ValueError(f"{perm} is not a permutation of {self.ndim} legs")
         if perm == tuple(range(self.ndim)):
             return self.copy()
-        out = BlockTensor(tuple(self.legs[p] for p in perm), self.charge, dtype=self.dtype)
-        src = self.layout.index
-        for i, key in enumerate(out.layout.keys):
-            orig = [0] * self.ndim
-            for j, p in enumerate(perm):
-                orig[p] = key[j]
-            out.block(i)[...] = self.block(src[tuple(orig)]).transpose(perm)
-        return out
+        legs = tuple(self.legs[p] for p in perm)
+        src, dst = self.layout, layout(legs, self.charge)
+        # block i of the result comes from the source block whose keys are its keys permuted back
+        back = np.empty(len(perm), dtype=np.int64)
+        back[list(perm)] = np.arange(len(perm))
+        radix = mixed_radix([leg.nsec for leg in self.legs])
+        order = np.searchsorted(src.key_array @ radix, dst.key_array[:, back] @ radix)
+        dest = np.empty(src.nblocks, dtype=np.int64)
+        dest[order] = dst.offsets[:-1]
+        spots = block_map(src.shape_array, src.offsets, np.asarray(perm, dtype=np.int64),
+                          np.zeros(0, dtype=np.int64), dest, np.ones(src.nblocks, dtype=np.int64), src.size, True)
+        out = np.empty_like(self.data)
+        out[spots] = self.data
+        return BlockTensor(legs, self.charge, out)
 
     def __repr__(self) -> str:
         return (f"BlockTensor(shape={self.shape}, charge={self.charge}, blocks={self.layout.nblocks}, "

@@ -23,6 +23,23 @@ class EigenResult:
     applications: int
 
 
+def _orthogonalize(w: np.ndarray, basis: np.ndarray) -> float:
+    """Project the orthonormal rows of ``basis`` out of ``w`` in place; returns the new norm.
+
+    Classical Gram-Schmidt, repeated once only when the first pass cancelled more than
+    1 - 1/sqrt(2) of the norm (the criterion of Daniel, Gragg, Kaufman and Stewart,
+    Math. Comp. 30, 772 (1976)): one pass is then already orthogonal to machine precision, and
+    each pass reads the whole Krylov basis, which costs as much as a small operator application.
+    """
+    before = np.linalg.norm(w)
+    w -= (basis.conj() @ w) @ basis
+    after = np.linalg.norm(w)
+    if after < before / np.sqrt(2.0):
+        w -= (basis.conj() @ w) @ basis
+        after = np.linalg.norm(w)
+    return float(after)
+
+
 def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarray,
                      lanczos_vectors: int = 24, tol: float = 1e-10, max_restarts: int = 4,
                      rng: np.random.Generator | None = None) -> EigenResult:
@@ -48,14 +65,19 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
         basis[0] = x
         for m in range(m_max):
             w = matvec(basis[m])
+            if np.may_share_memory(w, basis) or w.dtype != basis.dtype:
+                w = w.astype(basis.dtype)       # the projection below works in place
             apps += 1
             a = float(np.real(np.vdot(basis[m], w)))
             alpha.append(a)
-            w = w - basis[:m + 1].T @ (basis[:m + 1].conj() @ w)
-            w = w - basis[:m + 1].T @ (basis[:m + 1].conj() @ w)
-            b = float(np.linalg.norm(w))
-            tri = np.diag(alpha) + np.diag(beta, 1) + np.diag(beta, -1)
-            evals, evecs = np.linalg.eigh(tri)   # tiny; numpy's LAPACK keeps one thread pool busy
+            w -= a * basis[m]                   # the three-term recurrence first, so that the
+            if m:                               # projection below only removes round-off
+                w -= beta[-1] * basis[m - 1]
+            b = _orthogonalize(w, basis[:m + 1])
+            tri = np.zeros((m + 1, m + 1))
+            tri[np.diag_indices(m + 1)] = alpha
+            tri[np.arange(m), np.arange(1, m + 1)] = beta
+            evals, evecs = np.linalg.eigh(tri, UPLO="U")   # tiny; numpy's LAPACK keeps one thread pool busy
             value = float(evals[0])
             resid = abs(b * evecs[-1, 0])
             if resid < tol or b < 1e-14 or m == m_max - 1 or m == n - 1:

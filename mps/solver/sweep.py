@@ -22,7 +22,7 @@ from typing import Callable, Iterator
 
 import numpy as np
 
-from mps.blocks.contract import contract
+from mps.blocks.contract import contract, plan_contraction
 from mps.blocks.decompose import scale_leg, svd
 from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import Mpo
@@ -126,6 +126,7 @@ class SectorSweeper:
         self.lefts: list[BlockTensor | None] = [None] * state.sites
         self.rights: list[BlockTensor | None] = [None] * state.sites
         self._pairs: dict[int, BlockTensor] = {}
+        self.flops = 0      # multiply-adds x 2 of the planned contractions run by the bond steps
         self._build_environments()
 
     # ------------------------------------------------------------------ environments
@@ -144,12 +145,14 @@ class SectorSweeper:
     def _optimize(self, j: int, stage: Stage, tol: float):
         ts, ws = self.state.tensors, self.mpo.tensors
         theta = contract(ts[j], ts[j + 1], (2,), (0,))
+        self.flops += plan_contraction(ts[j].legs, ts[j].charge, (2,), ts[j + 1].legs, ts[j + 1].charge, (0,)).flops
         if j not in self._pairs:
             self._pairs[j] = merge_pair(ws[j], ws[j + 1])
         op = TwoSiteOperator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
         res = lowest_eigenpair(op.matvec, theta.data.astype(op.dtype, copy=False),
                                lanczos_vectors=self.settings.lanczos_vectors, tol=tol,
                                max_restarts=self.settings.lanczos_restarts, rng=self.rng)
+        self.flops += op.chain.flops * res.applications
         theta = _admix(op.wrap(res.vector), stage.admix, self.rng)
         cut = svd(theta, (0, 1), (2, 3), max_bond=stage.bond, discard=self.settings.discard,
                   min_value=1e-15)

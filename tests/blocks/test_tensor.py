@@ -135,8 +135,10 @@ def _with_layout(t: BlockTensor, keys, shapes) -> BlockTensor:
     sizes = [int(np.prod(shape)) for shape in shapes]
     offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
     bad = t.copy()
-    bad.layout = dataclasses.replace(t.layout, keys=tuple(keys), shapes=tuple(shapes), offsets=offsets,
-                                     index={k: i for i, k in enumerate(keys)})
+    nlegs = t.ndim
+    bad.layout = dataclasses.replace(t.layout, key_array=np.array(keys, dtype=np.int64).reshape(-1, nlegs),
+                                     shape_array=np.array(shapes, dtype=np.int64).reshape(-1, nlegs),
+                                     offsets=offsets)
     bad.data = np.zeros(int(offsets[-1]))
     return bad
 

@@ -1,0 +1,286 @@
+"""Compiled index kernels: where every entry of every block goes when blocks are packed into
+group matrices (and back), at compiled speed instead of a Python loop over blocks.
+
+A block of shape (n_0, ..., n_{r-1}) stored in C order at ``offset`` of a flat array is seen as a
+matrix whose rows run over the legs ``row_axes`` and whose columns run over ``col_axes`` (each in
+C order of those legs). Its entry (r, c) sits at offset + R[r] + C[c], where R and C are the
+mixed-radix sums of the block's C-order strides over the row and column legs. In its group matrix
+(leading dimension ``ld``) the block occupies the rectangle starting at ``dest``; entry (r, c) is
+packed position dest + r ld + c. One kernel call fills that map for all blocks of a tensor.
+
+Compiled with numba (``cache=True``, no parallel thread pool of its own: OpenBLAS owns the cores).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+
+@njit(cache=True, nogil=True)
+def _axis_sums(shape, strides, axes, out):  # pragma: no cover - compiled
+    """out[i] = sum_j digit_j(i) strides[axes[j]] over the C-order multi-index of shape[axes]."""
+    n = 1
+    for a in axes:
+        n *= shape[a]
+    m = len(axes)
+    digits = np.zeros(m, np.int64)
+    acc = 0
+    for i in range(n):
+        out[i] = acc
+        j = m - 1
+        while j >= 0:
+            a = axes[j]
+            digits[j] += 1
+            acc += strides[a]
+            if digits[j] < shape[a]:
+                break
+            acc -= digits[j] * strides[a]
+            digits[j] = 0
+            j -= 1
+    return n
+
+
+@njit(cache=True, nogil=True)
+def block_map(shapes, offsets, row_axes, col_axes, dest, ld, size, scatter, fill=-1):  # pragma: no cover
+    """Packed position <-> flat position of every entry of every block with ``dest[b] >= 0``.
+
+    shapes (nb, r), offsets (nb,) flat start of each block, dest (nb,) packed start of each block's
+    rectangle (-1: the block is not packed), ld (nb,) leading dimension of its group matrix.
+    ``scatter`` False: returns g of length ``size`` with g[packed] = flat (a gather map).
+    ``scatter`` True: returns s of length ``size`` (the flat size) with s[flat] = packed. Entries no
+    block reaches hold ``fill``; the array is written once when the blocks cover all of it.
+    """
+    nb, r = shapes.shape
+    covered = 0
+    big = 1
+    for b in range(nb):
+        rows = 1
+        cols = 1
+        for a in row_axes:
+            rows *= shapes[b, a]
+        for a in col_axes:
+            cols *= shapes[b, a]
+        big = max(big, rows, cols)
+        if dest[b] >= 0:
+            covered += rows * cols
+    out = np.empty(size, np.int64) if covered == size else np.full(size, fill, np.int64)
+    rsum = np.empty(big, np.int64)
+    csum = np.empty(big, np.int64)
+    strides = np.empty(r, np.int64)
+    for b in range(nb):
+        if dest[b] < 0:
+            continue
+        s = 1
+        for a in range(r - 1, -1, -1):
+            strides[a] = s
+            s *= shapes[b, a]
+        nr = _axis_sums(shapes[b], strides, row_axes, rsum)
+        nc = _axis_sums(shapes[b], strides, col_axes, csum)
+        for i in range(nr):
+            src = offsets[b] + rsum[i]
+            dst = dest[b] + i * ld[b]
+            if scatter:
+                for j in range(nc):
+                    out[src + csum[j]] = dst + j
+            else:
+                for j in range(nc):
+                    out[dst + j] = src + csum[j]
+    return out
+
+
+@njit(cache=True, nogil=True)
+def covered_entries(shapes, dest):  # pragma: no cover - compiled
+    """Number of entries of the blocks with ``dest[b] >= 0``."""
+    total = 0
+    for b in range(shapes.shape[0]):
+        if dest[b] >= 0:
+            n = 1
+            for a in range(shapes.shape[1]):
+                n *= shapes[b, a]
+            total += n
+    return total
+
+
+@njit(cache=True, nogil=True)
+def is_identity(idx, size):  # pragma: no cover - compiled
+    """idx == arange(size), stopping at the first mismatch."""
+    if len(idx) != size:
+        return False
+    for i in range(size):
+        if idx[i] != i:
+            return False
+    return True
+
+
+@njit(cache=True, nogil=True)
+def charge_keys(charges, shift, bias):  # pragma: no cover - compiled
+    """One int64 per charge vector, increasing with the vector's lexicographic order."""
+    n, k = charges.shape
+    out = np.zeros(n, np.int64)
+    for i in range(n):
+        key = 0
+        for c in range(k):
+            key = (key << shift) | (charges[i, c] + bias)
+        out[i] = key
+    return out
+
+
+@njit(cache=True, nogil=True)
+def _next_combo(digits, nsec, upto):  # pragma: no cover - compiled
+    """Advance a mixed-radix odometer over legs 0..upto-1 (last leg fastest); False when done."""
+    j = upto - 1
+    while j >= 0:
+        digits[j] += 1
+        if digits[j] < nsec[j]:
+            return True
+        digits[j] = 0
+        j -= 1
+    return False
+
+
+@njit(cache=True, nogil=True)
+def allowed_blocks(charges, sizes, starts, flows, target, shift, bias):  # pragma: no cover
+    """Sector keys, shapes and flat offsets of every allowed non-empty block, lexicographic order.
+
+    Legs are given packed: sectors of leg i are rows starts[i]:starts[i+1] of ``charges`` (k
+    columns, sorted) and ``sizes``. A block (s_0, ..., s_{r-1}) is allowed when
+    sum_i flows[i] q_i(s_i) = target; the last leg's sector is found by bisection.
+    """
+    r = len(flows)
+    k = charges.shape[1]
+    nsec = starts[1:] - starts[:-1]
+    last = charges[starts[r - 1]:starts[r]]
+    last_keys = charge_keys(last, shift, bias)
+    nhead = 1
+    for i in range(r - 1):
+        nhead *= nsec[i]
+    keys = np.empty((nhead, r), np.int64)
+    shapes = np.empty((nhead, r), np.int64)
+    digits = np.zeros(r, np.int64)
+    need = np.empty((1, k), np.int64)
+    count = 0
+    more = nhead > 0
+    while more:
+        for c in range(k):
+            total = 0
+            for i in range(r - 1):
+                total += flows[i] * charges[starts[i] + digits[i], c]
+            need[0, c] = flows[r - 1] * (target[c] - total)
+        key = charge_keys(need, shift, bias)[0]
+        pos = np.searchsorted(last_keys, key)
+        if pos < len(last_keys) and last_keys[pos] == key:
+            digits[r - 1] = pos
+            ok = True
+            for i in range(r):
+                shapes[count, i] = sizes[starts[i] + digits[i]]
+                keys[count, i] = digits[i]
+                ok = ok and shapes[count, i] > 0
+            if ok:
+                count += 1
+        digits[r - 1] = 0
+        more = _next_combo(digits, nsec, r - 1)
+    offsets = np.zeros(count + 1, np.int64)
+    for b in range(count):
+        n = 1
+        for i in range(r):
+            n *= shapes[b, i]
+        offsets[b + 1] = offsets[b] + n
+    return keys[:count].copy(), shapes[:count].copy(), offsets
+
+
+@njit(cache=True, nogil=True)
+def fuse_sectors(charges, sizes, starts, flows, flow, shift, bias):  # pragma: no cover
+    """Every non-empty sector combination of a group of legs and its place in the fused leg.
+
+    Returns (combos, codes, sector, offset, fused_charges, fused_sizes): combinations in mixed-radix
+    (lexicographic) order with their mixed-radix codes, the fused sector of each (charge flow * sum_i flows[i] q_i, sectors
+    sorted by charge) and its offset inside that sector (combinations of one sector laid out in
+    lexicographic order).
+    """
+    r = len(flows)
+    k = charges.shape[1]
+    nsec = starts[1:] - starts[:-1]
+    n = 1
+    for i in range(r):
+        n *= nsec[i]
+    combos = np.empty((n, r), np.int64)
+    codes = np.empty(n, np.int64)
+    total = np.empty((n, k), np.int64)
+    size = np.empty(n, np.int64)
+    digits = np.zeros(r, np.int64)
+    count = 0
+    code = 0
+    more = n > 0
+    while more:
+        s = 1
+        for i in range(r):
+            s *= sizes[starts[i] + digits[i]]
+        if s > 0:
+            for c in range(k):
+                t = 0
+                for i in range(r):
+                    t += flows[i] * charges[starts[i] + digits[i], c]
+                total[count, c] = flow * t
+            combos[count] = digits
+            codes[count] = code
+            size[count] = s
+            count += 1
+        code += 1
+        more = _next_combo(digits, nsec, r)
+    keys = charge_keys(total[:count], shift, bias)
+    fused_keys = np.unique(keys)
+    sector = np.searchsorted(fused_keys, keys)
+    nf = len(fused_keys)
+    fused_sizes = np.zeros(nf, np.int64)
+    fused_charges = np.empty((nf, k), np.int64)
+    offset = np.empty(count, np.int64)
+    for b in range(count):
+        f = sector[b]
+        if fused_sizes[f] == 0:
+            fused_charges[f] = total[b]
+        offset[b] = fused_sizes[f]
+        fused_sizes[f] += size[b]
+    return combos[:count].copy(), codes[:count].copy(), sector.astype(np.int64), offset, fused_charges, fused_sizes
+
+
+@njit(cache=True, nogil=True)
+def leg_positions(keys, shapes, offsets, axis, sector_start):  # pragma: no cover - compiled
+    """Dense index along leg ``axis`` of every entry of the flat data (C order inside blocks)."""
+    out = np.empty(offsets[-1], np.int64)
+    r = shapes.shape[1]
+    for b in range(len(offsets) - 1):
+        outer = 1
+        inner = 1
+        for a in range(axis):
+            outer *= shapes[b, a]
+        for a in range(axis + 1, r):
+            inner *= shapes[b, a]
+        base = sector_start[keys[b, axis]]
+        p = offsets[b]
+        for _ in range(outer):
+            for i in range(shapes[b, axis]):
+                for _j in range(inner):
+                    out[p] = base + i
+                    p += 1
+    return out
+
+
+@njit(cache=True, nogil=True)
+def small_products(pa, pb, pc, groups):  # pragma: no cover - compiled
+    """C = A B for every group (nrow, nmid, ncol, a_start, b_start, c_start) of packed operands.
+
+    A plain loop for groups too small for a BLAS call to pay off: from Python each call costs a
+    few microseconds of slicing and dispatch, more than the arithmetic of a 10 x 10 x 10 product.
+    """
+    for g in range(groups.shape[0]):
+        nr, nm, nc, sa, sb, sc = groups[g]
+        for i in range(nr):
+            row = sc + i * nc
+            for j in range(nc):
+                pc[row + j] = 0
+            for k in range(nm):
+                aik = pa[sa + i * nm + k]
+                col = sb + k * nc
+                for j in range(nc):
+                    pc[row + j] += aik * pb[col + j]

@@ -1,0 +1,149 @@
+"""The compiled core of contraction planning: groups and index maps of a contraction in one call.
+
+Input is plain arrays: the block layouts of A, B and the result (sector keys, shapes, offsets),
+and the fusion maps of A's free legs (rows), the contracted legs (middle) and B's free legs
+(columns) as (codes, sector, offset, radix, fused sizes) -- see
+:class:`mps.blocks.charges.FusionMap`. Every block finds its fused row/middle/column sector and
+offset by bisection on the mixed-radix codes; the groups are the middle sectors met by both
+operands, in sector order; the entry-by-entry maps come from :func:`mps.blocks.kernels.block_map`.
+The Python planner (:mod:`mps.blocks.contract`) only wraps the result.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from mps.blocks.kernels import block_map, covered_entries, is_identity
+
+
+@njit(cache=True, nogil=True)
+def _locate(keys, axes, fusion):  # pragma: no cover - compiled
+    """(fused sector, offset) of every block's combination of sectors on ``axes``."""
+    codes, sector, offset, radix = fusion[0], fusion[1], fusion[2], fusion[3]
+    n = keys.shape[0]
+    sec = np.full(n, -1, np.int64)
+    off = np.zeros(n, np.int64)
+    for b in range(n):
+        code = 0
+        for j in range(len(axes)):
+            code += keys[b, axes[j]] * radix[j]
+        pos = np.searchsorted(codes, code)
+        if pos < len(codes) and codes[pos] == code:
+            sec[b] = sector[pos]
+            off[b] = offset[pos]
+    return sec, off
+
+
+@njit(cache=True, nogil=True)
+def _starts(sizes, out):  # pragma: no cover - compiled
+    total = 0
+    for g in range(len(sizes)):
+        out[g] = total
+        total += sizes[g]
+    return total
+
+
+@njit(cache=True, nogil=True)
+def plan_maps(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mid, f_col):  # pragma: no cover
+    """Groups (ngroups, 6: nrow, nmid, ncol, a_start, b_start, c_start), gather maps of A and B,
+    the packed position of every result entry (the zero slot, one past the packed products, where
+    no group produces it) and flags (A identity, A hole, B identity, B hole, result identity).
+    Blocks never overlap in their group matrices, so a map has no hole exactly when its blocks'
+    sizes add up to its length."""
+    keys_a, shapes_a, offs_a = lay_a
+    keys_b, shapes_b, offs_b = lay_b
+    keys_o, shapes_o, offs_o = lay_o
+    rs_a, ro_a = _locate(keys_a, row_a, f_row)
+    ms_a, mo_a = _locate(keys_a, mid_a, f_mid)
+    ms_b, mo_b = _locate(keys_b, mid_b, f_mid)
+    cs_b, co_b = _locate(keys_b, col_b, f_col)
+
+    nm = len(f_mid[4])
+    row_of_mid = np.full(nm, -1, np.int64)
+    col_of_mid = np.full(nm, -1, np.int64)
+    for b in range(len(ms_a)):
+        if ms_a[b] >= 0:
+            row_of_mid[ms_a[b]] = rs_a[b]
+    for b in range(len(ms_b)):
+        if ms_b[b] >= 0:
+            col_of_mid[ms_b[b]] = cs_b[b]
+    group_of_mid = np.full(nm, -1, np.int64)
+    group_of_row = np.full(len(f_row[4]), -1, np.int64)
+    ng = 0
+    for m in range(nm):
+        if row_of_mid[m] >= 0 and col_of_mid[m] >= 0:
+            group_of_mid[m] = ng
+            group_of_row[row_of_mid[m]] = ng
+            ng += 1
+    groups = np.empty((ng, 6), np.int64)
+    for m in range(nm):
+        g = group_of_mid[m]
+        if g >= 0:
+            groups[g, 0] = f_row[4][row_of_mid[m]]
+            groups[g, 1] = f_mid[4][m]
+            groups[g, 2] = f_col[4][col_of_mid[m]]
+    pa = _starts(groups[:, 0] * groups[:, 1], groups[:, 3])
+    pb = _starts(groups[:, 1] * groups[:, 2], groups[:, 4])
+    pc = _starts(groups[:, 0] * groups[:, 2], groups[:, 5])
+
+    dest = np.full(len(ms_a), -1, np.int64)
+    ld = np.zeros(len(ms_a), np.int64)
+    for b in range(len(ms_a)):
+        g = group_of_mid[ms_a[b]] if ms_a[b] >= 0 else -1
+        if g >= 0:
+            ld[b] = groups[g, 1]
+            dest[b] = groups[g, 3] + ro_a[b] * ld[b] + mo_a[b]
+    gather_a = block_map(shapes_a, offs_a, row_a, mid_a, dest, ld, pa, False)
+    hole_a = covered_entries(shapes_a, dest) != pa
+
+    dest = np.full(len(ms_b), -1, np.int64)
+    ld = np.zeros(len(ms_b), np.int64)
+    for b in range(len(ms_b)):
+        g = group_of_mid[ms_b[b]] if ms_b[b] >= 0 else -1
+        if g >= 0:
+            ld[b] = groups[g, 2]
+            dest[b] = groups[g, 4] + mo_b[b] * ld[b] + co_b[b]
+    gather_b = block_map(shapes_b, offs_b, mid_b, col_b, dest, ld, pb, False)
+    hole_b = covered_entries(shapes_b, dest) != pb
+
+    no = keys_o.shape[1]
+    rows_o = np.arange(na)
+    cols_o = np.arange(na, no)
+    rs_o, ro_o = _locate(keys_o, rows_o, f_row)
+    _, co_o = _locate(keys_o, cols_o, f_col)
+    dest = np.full(len(rs_o), -1, np.int64)
+    ld = np.zeros(len(rs_o), np.int64)
+    for b in range(len(rs_o)):
+        g = group_of_row[rs_o[b]] if rs_o[b] >= 0 else -1
+        if g >= 0:
+            ld[b] = groups[g, 2]
+            dest[b] = groups[g, 5] + ro_o[b] * ld[b] + co_o[b]
+    out_size = offs_o[-1]
+    spots = block_map(shapes_o, offs_o, rows_o, cols_o, dest, ld, out_size, True, pc)
+
+    flags = np.zeros(5, np.bool_)
+    flags[0], flags[1] = is_identity(gather_a, offs_a[-1]), hole_a
+    flags[2], flags[3] = is_identity(gather_b, offs_b[-1]), hole_b
+    flags[4] = pc == out_size and is_identity(spots, pc)
+    return groups, gather_a, gather_b, spots, flags
+
+
+@njit(cache=True, nogil=True)
+def sector_map(lay, row_axes, col_axes, f_row, f_col, start, ld, size, scatter):  # pragma: no cover
+    """Index map between a tensor's flat data and one dense matrix per fused row sector.
+
+    Row sector s of the fused ``row_axes`` owns the matrix at ``start[s]`` (-1: none) with ``ld[s]``
+    columns; a block lands at row offset x column offset of its row and column combinations.
+    ``scatter`` False: g[packed] = flat (-1 where no block lands); True: s[flat] = packed.
+    """
+    keys, shapes, offs = lay
+    rs, ro = _locate(keys, row_axes, f_row)
+    _, co = _locate(keys, col_axes, f_col)
+    dest = np.full(len(rs), -1, np.int64)
+    width = np.zeros(len(rs), np.int64)
+    for b in range(len(rs)):
+        if rs[b] >= 0 and start[rs[b]] >= 0:
+            width[b] = ld[rs[b]]
+            dest[b] = start[rs[b]] + ro[b] * width[b] + co[b]
+    return block_map(shapes, offs, row_axes, col_axes, dest, width, size, scatter)
