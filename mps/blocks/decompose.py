@@ -168,16 +168,21 @@ def choose_kept(spectra: list[np.ndarray], max_bond: int | None, discard: float,
     return kept
 
 
+def dense_svd(m: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Thin SVD of one dense matrix: numpy's gesdd (one BLAS thread pool), gesvd if it fails."""
+    try:
+        return np.linalg.svd(m, full_matrices=False)
+    except np.linalg.LinAlgError:
+        return sla.svd(m, full_matrices=False, lapack_driver="gesvd", check_finite=False)
+
+
 def svd(t: BlockTensor, row_axes, col_axes, max_bond: int | None = None, discard: float = 0.0,
         min_value: float = 0.0) -> Truncation:
     """Truncated SVD of ``t`` between ``row_axes`` and ``col_axes``, ranked across all sectors."""
     mb = as_matrix(t, row_axes, col_axes)
     us, ss, vs = [], [], []
     for m in mb.mats:
-        try:
-            u, s, vh = np.linalg.svd(m, full_matrices=False)   # numpy's LAPACK: one BLAS thread pool
-        except np.linalg.LinAlgError:
-            u, s, vh = sla.svd(m, full_matrices=False, lapack_driver="gesvd", check_finite=False)
+        u, s, vh = dense_svd(m)
         us.append(u), ss.append(s), vs.append(vh)
     total = float(sum(np.sum(s**2) for s in ss))
     kept = choose_kept(ss, max_bond, discard, min_value)

@@ -32,6 +32,7 @@ from mps.pipeline.schema import (
     SOLVER_KEYS,
     STAGE_KEYS,
     TOP_KEYS,
+    UPDATE_CHOICES,
     AnalysisConfig,
     ModelConfig,
     OutputConfig,
@@ -142,6 +143,9 @@ def _solver(sec: Mapping[str, Any]) -> SolverConfig:
     method = sec.get("method", "sweeps")
     if method not in METHOD_CHOICES:
         raise ConfigError("solver.method", f"must be one of {', '.join(METHOD_CHOICES)}, got {show(method)}")
+    update = sec.get("update", "auto")
+    if update not in UPDATE_CHOICES:
+        raise ConfigError("solver.update", f"must be one of {', '.join(UPDATE_CHOICES)}, got {show(update)}")
     init = sec.get("init", "random")
     if init not in INIT_CHOICES:
         raise ConfigError("solver.init", f"must be one of {', '.join(INIT_CHOICES)}, got {show(init)}")
@@ -155,6 +159,7 @@ def _solver(sec: Mapping[str, Any]) -> SolverConfig:
         lanczos_tol=real(sec.get("lanczos_tol", 1e-10), "solver.lanczos_tol", lo=0.0, lo_open=True),
         init=init,
         method=method,
+        update=update,
     )
 
 

@@ -52,6 +52,8 @@ def solver_hash(cfg: RunConfig) -> str:
     settings = cfg.solver.to_dict()
     if settings["method"] == "sweeps":   # the default method leaves the hash of older checkpoints unchanged
         del settings["method"]
+    if settings["update"] == "auto":   # likewise the default update
+        del settings["update"]
     text = json.dumps(settings, sort_keys=True)
     return hashlib.sha256(text.encode()).hexdigest()
 
@@ -70,7 +72,7 @@ def sweep_settings(cfg: RunConfig) -> SweepSettings:
     sol = cfg.solver
     return SweepSettings(tuple(Stage(s.bond, s.sweeps, s.admix) for s in sol.stages), discard=sol.discard,
                          energy_tol=sol.energy_tol, lanczos_vectors=sol.lanczos_vectors,
-                         lanczos_tol=sol.lanczos_tol, lanczos_restarts=sol.lanczos_restarts)
+                         lanczos_tol=sol.lanczos_tol, lanczos_restarts=sol.lanczos_restarts, update=sol.update)
 
 
 class ProgressLine:

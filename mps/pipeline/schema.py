@@ -49,7 +49,7 @@ from mps.chain.lattice import LocalSpace, Term
 TOP_KEYS = ("name", "model", "solver", "analysis", "output")
 MODEL_KEYS = ("family", "sites", "couplings", "charge")   # plus the family's options
 SOLVER_KEYS = ("method", "stages", "discard", "energy_tol", "seed", "lanczos_vectors", "lanczos_restarts",
-               "lanczos_tol", "init")
+               "lanczos_tol", "init", "update")
 STAGE_KEYS = ("bond", "sweeps", "admix")
 ANALYSIS_KEYS = ("renyi", "cuts", "flux_points", "spectrum_levels", "weight_floor", "resolve", "fit_window",
              "correlations")
@@ -59,6 +59,7 @@ DEFAULT_STAGES = ((32, 2), (128, 6))
 DEFAULT_ADMIX = 1e-5
 INIT_CHOICES = ("random", "product")
 METHOD_CHOICES = ("sweeps", "exact")
+UPDATE_CHOICES = ("auto", "two-site", "single-site")
 
 
 @dataclass(frozen=True)
@@ -129,10 +130,12 @@ class SolverConfig:
     lanczos_tol: float
     init: str
     method: str = "sweeps"
+    update: str = "auto"
 
     def to_dict(self) -> dict[str, Any]:
         return {
             "method": self.method,
+            "update": self.update,
             "stages": [{"bond": s.bond, "sweeps": s.sweeps, "admix": s.admix} for s in self.stages],
             "discard": self.discard,
             "energy_tol": self.energy_tol,

@@ -59,8 +59,8 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
     apps = 0
     value, resid = np.nan, np.inf
     m_max = max(2, min(lanczos_vectors, n))
+    basis = np.empty((m_max, n), dtype=x.dtype)
     for _ in range(max_restarts + 1):
-        basis = np.empty((m_max, n), dtype=x.dtype)
         alpha, beta = [], []
         basis[0] = x
         for m in range(m_max):
@@ -83,7 +83,7 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
             if resid < tol or b < 1e-14 or m == m_max - 1 or m == n - 1:
                 break
             beta.append(b)
-            basis[m + 1] = w / b
+            np.divide(w, b, out=basis[m + 1])
         coeffs = evecs[:, 0]
         x = coeffs @ basis[:len(coeffs)]
         x /= np.linalg.norm(x)

@@ -97,6 +97,7 @@ BAD = {
     "seed bool": (edit("solver.seed", False), "solver.seed", "got false"),
     "lanczos_vectors one": (edit("solver.lanczos_vectors", 1), "solver.lanczos_vectors", "integer >= 2"),
     "init unknown": (edit("solver.init", "zeros"), "solver.init", "random, product"),
+    "update unknown": (edit("solver.update", "three-site"), "solver.update", "two-site, single-site"),
     "renyi zero": (edit("analysis.renyi", [1, 0]), "analysis.renyi[1]", "> 0 or \"inf\", got 0"),
     "renyi negative": (edit("analysis.renyi", [-2]), "analysis.renyi[0]", "> 0"),
     "renyi word": (edit("analysis.renyi", ["two"]), "analysis.renyi[0]", "got 'two'"),
