@@ -12,17 +12,15 @@ applies the same operator many times pays for it once.
 
 from __future__ import annotations
 
-import time
-from collections import OrderedDict
 from dataclasses import dataclass
 from functools import cached_property
-from typing import NamedTuple
 
 import numpy as np
 
 from mps.blocks.charges import FusionMap, Leg, fuse
-from mps.blocks.kernels import small_products
-from mps.blocks.plan_kernel import plan_maps
+from mps.blocks.kernels import block_map, is_identity, pack_blocks, small_products, unpack_blocks
+from mps.blocks.plan_cache import PlanCache
+from mps.blocks.plan_kernel import plan_places
 from mps.blocks.tensor import BlockTensor, layout
 
 SMALL_GEMM = 2048
@@ -43,27 +41,94 @@ class _Group:
 
 
 @dataclass(frozen=True)
+class Placement:
+    """Where the blocks of one operand (or of the result) sit in the packed group matrices:
+    block b's rows run over legs ``rows``, its columns over ``cols``, and its top-left entry is
+    packed position ``dest[b]`` of a matrix with ``ld[b]`` columns (-1: in no group). ``size``
+    is the packed length."""
+
+    shapes: np.ndarray
+    offsets: np.ndarray
+    rows: np.ndarray
+    cols: np.ndarray
+    dest: np.ndarray
+    ld: np.ndarray
+    size: int
+
+    def pack(self, data: np.ndarray) -> np.ndarray:
+        """The operand's flat data as packed group matrices (one compiled copy)."""
+        return pack_blocks(data, self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld, self.size)
+
+    def unpack(self, packed: np.ndarray) -> np.ndarray:
+        """Flat data of the result from the packed products (zero where no group lands)."""
+        return unpack_blocks(packed, self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld)
+
+    def gather(self) -> np.ndarray | None:
+        """gather[i] = flat position of packed entry i; None when that is the identity."""
+        idx = block_map(self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld, self.size, False)
+        return None if is_identity(idx, int(self.offsets[-1])) else idx
+
+    def scatter(self) -> np.ndarray | None:
+        """s[j] = packed position of flat entry j (``size``, the zero slot, where no group
+        lands); None when the packed products already are the flat data."""
+        flat = int(self.offsets[-1])
+        spots = block_map(self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld, flat, True,
+                          self.size)
+        return None if self.size == flat and is_identity(spots, flat) else spots
+
+
+@dataclass(eq=False)
 class ContractionPlan:
     """Everything needed to contract two structures.
 
-    The operands are packed into one buffer of group matrices each (group after group, C order):
-    ``gather_a[i]`` is the position in A's flat data of packed entry i (likewise ``gather_b``;
-    None when the data is already in packed order). The products land in one packed buffer of
-    ``packed_size`` entries followed by a single zero; ``out_from_packed[j]`` is the packed
-    position of entry j of the result's flat data (the zero slot for entries no group produces;
-    None when the packed buffer already is the result). One fancy-index per operand replaces a
-    Python loop over blocks, and chained contractions can compose these maps (see
-    :class:`PlannedChain`).
+    The operands are packed into one buffer of group matrices each (group after group, C order)
+    and the products land in one packed buffer of ``packed_size`` entries followed by a single
+    zero. A plan that runs once copies blocks straight into place (:class:`Placement`); a plan
+    that runs many times (the effective Hamiltonian) also gets entry-by-entry index maps
+    (:meth:`build_maps`): ``gather_a[i]`` is the position in A's flat data of packed entry i
+    (likewise ``gather_b``; None when the data is already in packed order), and
+    ``out_from_packed[j]`` the packed position of entry j of the result's flat data (the zero
+    slot for entries no group produces; None when the packed buffer already is the result).
+    Chained contractions compose these maps into one gather per step (:class:`PlannedChain`).
     """
 
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]
     group_array: np.ndarray           # (ngroups, 6): the fields of :class:`_Group`
-    gather_a: np.ndarray | None
-    gather_b: np.ndarray | None
-    out_from_packed: np.ndarray | None
     packed_size: int
     out_size: int
+    place_a: Placement
+    place_b: Placement
+    place_o: Placement | None          # None: the result is a scalar
+    maps: tuple | None = None
+
+    def build_maps(self) -> None:
+        if self.maps is None:
+            self.maps = (self.place_a.gather(), self.place_b.gather(),
+                         self.place_o.scatter() if self.place_o is not None else None)
+
+    @property
+    def gather_a(self) -> np.ndarray | None:
+        self.build_maps()
+        return self.maps[0]
+
+    @property
+    def gather_b(self) -> np.ndarray | None:
+        self.build_maps()
+        return self.maps[1]
+
+    @property
+    def out_from_packed(self) -> np.ndarray | None:
+        self.build_maps()
+        return self.maps[2]
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held by the plan's arrays (the cache's weight)."""
+        arrays = [self.group_array] + [getattr(p, f) for p in (self.place_a, self.place_b, self.place_o)
+                                       if p is not None for f in ("dest", "ld")]
+        arrays += [m for m in (self.maps or ()) if m is not None]
+        return sum(x.nbytes for x in arrays) + 1024
 
     @cached_property
     def groups(self) -> tuple[_Group, ...]:
@@ -125,17 +190,24 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
     out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
     lay_o = layout(out_legs, out_charge) if out_legs else None
-    groups, gather_a, gather_b, spots, flags = plan_maps(
-        _arrays(lay_a), _axes(free_a), _axes(axes_a), _arrays(lay_b), _axes(axes_b), _axes(free_b),
-        _arrays(lay_o), len(free_a), fa.arrays, fm.arrays, fb.arrays)
-    if flags[1] or flags[3]:
+    rows_a, mids_a, mids_b, cols_b = _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b)
+    groups, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = plan_places(
+        _arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o), len(free_a),
+        fa.arrays, fm.arrays, fb.arrays)
+    if holes[0] or holes[1]:
         raise AssertionError("contraction plan left a hole in a group matrix")
-    pc = int(groups[:, 0] @ groups[:, 2]) if len(groups) else 0
-    out_from = spots if out_legs and not flags[4] else None
-    return ContractionPlan(out_legs, out_charge, groups,
-                           None if flags[0] else gather_a.astype(np.intp, copy=False),
-                           None if flags[2] else gather_b.astype(np.intp, copy=False),
-                           out_from, pc, lay_o.size if out_legs else 1)
+    g = groups
+    pa, pb = int(g[:, 0] @ g[:, 1]), int(g[:, 1] @ g[:, 2])
+    pc = int(g[:, 0] @ g[:, 2]) if len(g) else 0
+    place_a = Placement(lay_a.shape_array, lay_a.offsets, rows_a, mids_a, dest_a, ld_a, pa)
+    place_b = Placement(lay_b.shape_array, lay_b.offsets, mids_b, cols_b, dest_b, ld_b, pb)
+    place_o = None
+    if out_legs:
+        na = len(free_a)
+        place_o = Placement(lay_o.shape_array, lay_o.offsets, _axes(range(na)), _axes(range(na, len(out_legs))),
+                            dest_o, ld_o, pc)
+    return ContractionPlan(out_legs, out_charge, groups, pc, lay_o.size if out_legs else 1,
+                           place_a, place_b, place_o)
 
 
 _NO_BLOCKS = (np.zeros((0, 0), dtype=np.int64), np.zeros((0, 0), dtype=np.int64), np.zeros(1, dtype=np.int64))
@@ -147,57 +219,6 @@ def _arrays(lay) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 def _axes(axes: tuple[int, ...]) -> np.ndarray:
     return np.array(axes, dtype=np.int64)
-
-
-class CacheInfo(NamedTuple):
-    hits: int
-    misses: int
-    plans: int
-    nbytes: int
-    build_seconds: float
-
-
-class PlanCache:
-    """Least-recently-used contraction plans, bounded by the memory of their index arrays.
-
-    Small plans are kept by the hundreds, so sweeps that revisit the same block structures (a
-    converged stage) plan nothing; plans of bond-512 intermediates weigh tens of megabytes, and
-    only a few of those are kept.
-    """
-
-    def __init__(self, build, max_bytes: int):
-        self.build, self.max_bytes = build, max_bytes
-        self.plans: OrderedDict = OrderedDict()
-        self.nbytes = self.hits = self.misses = 0
-        self.build_seconds = 0.0      # wall time spent building plans (the bench's planning share)
-
-    @staticmethod
-    def weight(plan: ContractionPlan) -> int:
-        return sum(a.nbytes for a in (plan.gather_a, plan.gather_b, plan.out_from_packed) if a is not None) + 1024
-
-    def __call__(self, *key) -> ContractionPlan:
-        plan = self.plans.get(key)
-        if plan is not None:
-            self.hits += 1
-            self.plans.move_to_end(key)
-            return plan
-        self.misses += 1
-        t0 = time.perf_counter()
-        plan = self.build(*key)
-        self.build_seconds += time.perf_counter() - t0
-        self.plans[key] = plan
-        self.nbytes += self.weight(plan)
-        while self.nbytes > self.max_bytes and len(self.plans) > 1:
-            _, old = self.plans.popitem(last=False)
-            self.nbytes -= self.weight(old)
-        return plan
-
-    def cache_info(self) -> CacheInfo:
-        return CacheInfo(self.hits, self.misses, len(self.plans), self.nbytes, self.build_seconds)
-
-    def cache_clear(self) -> None:
-        self.plans.clear()
-        self.nbytes = 0
 
 
 plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
@@ -233,11 +254,10 @@ def unpack(plan: ContractionPlan, pc: np.ndarray) -> np.ndarray:
 def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
     """Execute a contraction plan; returns a BlockTensor, or a scalar if no leg is left."""
     dtype = np.result_type(a.dtype, b.dtype)
-    pc = gemm_groups(plan, _packed(a.data, plan.gather_a), _packed(b.data, plan.gather_b), dtype)
+    pc = gemm_groups(plan, plan.place_a.pack(a.data), plan.place_b.pack(b.data), dtype)
     if not plan.out_legs:
         return pc[:-1].sum() if plan.packed_size else dtype.type(0)
-    data = pc[:plan.packed_size] if plan.out_from_packed is None else np.take(pc, plan.out_from_packed)
-    return BlockTensor(plan.out_legs, plan.out_charge, data)
+    return BlockTensor(plan.out_legs, plan.out_charge, plan.place_o.unpack(pc))
 
 
 class PlannedChain:
@@ -257,8 +277,9 @@ class PlannedChain:
         for const, ax_run, ax_const, run_first in steps:
             ax_run = tuple(int(i) % len(legs) for i in ax_run)
             ax_const = tuple(int(i) % const.ndim for i in ax_const)
-            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
-                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
+            plan = (plan_contraction.with_maps(legs, charge, ax_run, const.legs, const.charge, ax_const)
+                    if run_first else
+                    plan_contraction.with_maps(const.legs, const.charge, ax_const, legs, charge, ax_run))
             self.plans.append(plan)
             self.constants.append(_packed(const.data, plan.gather_b if run_first else plan.gather_a))
             self.first.append(run_first)
@@ -287,7 +308,7 @@ class PlannedChain:
 
     def __call__(self, data: np.ndarray) -> np.ndarray:
         """Flat data of the final result for the running tensor's flat ``data``."""
-        x = data
+        x = np.asarray(data, dtype=self.dtype)      # a real tensor against complex constants
         last = len(self.plans) - 1
         for k, plan in enumerate(self.plans):
             if self.gathers[k] is not None:

@@ -284,3 +284,65 @@ def small_products(pa, pb, pc, groups):  # pragma: no cover - compiled
                 col = sb + k * nc
                 for j in range(nc):
                     pc[row + j] += aik * pb[col + j]
+
+
+@njit(cache=True, nogil=True)
+def pack_blocks(data, shapes, offsets, row_axes, col_axes, dest, ld, size):  # pragma: no cover
+    """Copy every block with ``dest[b] >= 0`` into its rectangle of the packed group matrices
+    (the data moves of :func:`block_map` without building the index map: for contractions that
+    run once, building the map would cost as much as the copy). The blocks must cover the
+    packed buffer."""
+    out = np.empty(size, data.dtype)
+    nb, r = shapes.shape
+    big = 1
+    for b in range(nb):
+        big = max(big, offsets[b + 1] - offsets[b])
+    rsum = np.empty(big, np.int64)
+    csum = np.empty(big, np.int64)
+    strides = np.empty(r, np.int64)
+    for b in range(nb):
+        if dest[b] < 0:
+            continue
+        s = 1
+        for a in range(r - 1, -1, -1):
+            strides[a] = s
+            s *= shapes[b, a]
+        nr = _axis_sums(shapes[b], strides, row_axes, rsum)
+        nc = _axis_sums(shapes[b], strides, col_axes, csum)
+        for i in range(nr):
+            src = offsets[b] + rsum[i]
+            dst = dest[b] + i * ld[b]
+            for j in range(nc):
+                out[dst + j] = data[src + csum[j]]
+    return out
+
+
+@njit(cache=True, nogil=True)
+def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pragma: no cover
+    """The inverse of :func:`pack_blocks` into a new flat array; blocks with ``dest[b] < 0``
+    (no group produced them) are zero."""
+    nb, r = shapes.shape
+    out = np.empty(offsets[nb], packed.dtype)
+    big = 1
+    for b in range(nb):
+        big = max(big, offsets[b + 1] - offsets[b])
+    rsum = np.empty(big, np.int64)
+    csum = np.empty(big, np.int64)
+    strides = np.empty(r, np.int64)
+    for b in range(nb):
+        if dest[b] < 0:
+            for p in range(offsets[b], offsets[b + 1]):
+                out[p] = 0
+            continue
+        s = 1
+        for a in range(r - 1, -1, -1):
+            strides[a] = s
+            s *= shapes[b, a]
+        nr = _axis_sums(shapes[b], strides, row_axes, rsum)
+        nc = _axis_sums(shapes[b], strides, col_axes, csum)
+        for i in range(nr):
+            src = offsets[b] + rsum[i]
+            dst = dest[b] + i * ld[b]
+            for j in range(nc):
+                out[src + csum[j]] = packed[dst + j]
+    return out

@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from mps.blocks.kernels import block_map, covered_entries, is_identity
+from mps.blocks.kernels import block_map, covered_entries
 
 
 @njit(cache=True, nogil=True)
@@ -45,12 +45,28 @@ def _starts(sizes, out):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True)
-def plan_maps(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mid, f_col):  # pragma: no cover
-    """Groups (ngroups, 6: nrow, nmid, ncol, a_start, b_start, c_start), gather maps of A and B,
-    the packed position of every result entry (the zero slot, one past the packed products, where
-    no group produces it) and flags (A identity, A hole, B identity, B hole, result identity).
-    Blocks never overlap in their group matrices, so a map has no hole exactly when its blocks'
-    sizes add up to its length."""
+def _placed(group_of, sec, inside_row, inside_col, groups, width_col, start_col):  # pragma: no cover
+    """dest and leading dimension of every block: group of its sector, top-left entry at
+    row offset x width + column offset (-1: the block is in no group)."""
+    n = len(sec)
+    dest = np.full(n, -1, np.int64)
+    ld = np.zeros(n, np.int64)
+    for b in range(n):
+        g = group_of[sec[b]] if sec[b] >= 0 else -1
+        if g >= 0:
+            ld[b] = groups[g, width_col]
+            dest[b] = groups[g, start_col] + inside_row[b] * ld[b] + inside_col[b]
+    return dest, ld
+
+
+@njit(cache=True, nogil=True)
+def plan_places(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mid, f_col):  # pragma: no cover
+    """Groups (ngroups, 6: nrow, nmid, ncol, a_start, b_start, c_start) and where every block of
+    A, B and the result sits in them: (dest, ld) per operand (dest -1: the block meets no group),
+    plus flags (A has a hole, B has a hole). Blocks never overlap in their group matrices, so a
+    packed buffer has no hole exactly when its blocks' sizes add up to its length. Work is
+    proportional to the number of blocks; the entry-by-entry maps are built only for plans that
+    are run many times (:func:`mps.blocks.kernels.block_map`)."""
     keys_a, shapes_a, offs_a = lay_a
     keys_b, shapes_b, offs_b = lay_b
     keys_o, shapes_o, offs_o = lay_o
@@ -85,48 +101,17 @@ def plan_maps(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mid,
             groups[g, 2] = f_col[4][col_of_mid[m]]
     pa = _starts(groups[:, 0] * groups[:, 1], groups[:, 3])
     pb = _starts(groups[:, 1] * groups[:, 2], groups[:, 4])
-    pc = _starts(groups[:, 0] * groups[:, 2], groups[:, 5])
+    _starts(groups[:, 0] * groups[:, 2], groups[:, 5])
 
-    dest = np.full(len(ms_a), -1, np.int64)
-    ld = np.zeros(len(ms_a), np.int64)
-    for b in range(len(ms_a)):
-        g = group_of_mid[ms_a[b]] if ms_a[b] >= 0 else -1
-        if g >= 0:
-            ld[b] = groups[g, 1]
-            dest[b] = groups[g, 3] + ro_a[b] * ld[b] + mo_a[b]
-    gather_a = block_map(shapes_a, offs_a, row_a, mid_a, dest, ld, pa, False)
-    hole_a = covered_entries(shapes_a, dest) != pa
-
-    dest = np.full(len(ms_b), -1, np.int64)
-    ld = np.zeros(len(ms_b), np.int64)
-    for b in range(len(ms_b)):
-        g = group_of_mid[ms_b[b]] if ms_b[b] >= 0 else -1
-        if g >= 0:
-            ld[b] = groups[g, 2]
-            dest[b] = groups[g, 4] + mo_b[b] * ld[b] + co_b[b]
-    gather_b = block_map(shapes_b, offs_b, mid_b, col_b, dest, ld, pb, False)
-    hole_b = covered_entries(shapes_b, dest) != pb
-
-    no = keys_o.shape[1]
-    rows_o = np.arange(na)
-    cols_o = np.arange(na, no)
-    rs_o, ro_o = _locate(keys_o, rows_o, f_row)
-    _, co_o = _locate(keys_o, cols_o, f_col)
-    dest = np.full(len(rs_o), -1, np.int64)
-    ld = np.zeros(len(rs_o), np.int64)
-    for b in range(len(rs_o)):
-        g = group_of_row[rs_o[b]] if rs_o[b] >= 0 else -1
-        if g >= 0:
-            ld[b] = groups[g, 2]
-            dest[b] = groups[g, 5] + ro_o[b] * ld[b] + co_o[b]
-    out_size = offs_o[-1]
-    spots = block_map(shapes_o, offs_o, rows_o, cols_o, dest, ld, out_size, True, pc)
-
-    flags = np.zeros(5, np.bool_)
-    flags[0], flags[1] = is_identity(gather_a, offs_a[-1]), hole_a
-    flags[2], flags[3] = is_identity(gather_b, offs_b[-1]), hole_b
-    flags[4] = pc == out_size and is_identity(spots, pc)
-    return groups, gather_a, gather_b, spots, flags
+    dest_a, ld_a = _placed(group_of_mid, ms_a, ro_a, mo_a, groups, 1, 3)
+    dest_b, ld_b = _placed(group_of_mid, ms_b, mo_b, co_b, groups, 2, 4)
+    rs_o, ro_o = _locate(keys_o, np.arange(na), f_row)
+    _, co_o = _locate(keys_o, np.arange(na, keys_o.shape[1]), f_col)
+    dest_o, ld_o = _placed(group_of_row, rs_o, ro_o, co_o, groups, 2, 5)
+    holes = np.zeros(2, np.bool_)
+    holes[0] = covered_entries(shapes_a, dest_a) != pa
+    holes[1] = covered_entries(shapes_b, dest_b) != pb
+    return groups, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes
 
 
 @njit(cache=True, nogil=True)

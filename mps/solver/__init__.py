@@ -1,6 +1,7 @@
-"""The ground-state search in one charge sector: environments and the two-site effective
-Hamiltonian, restarted Lanczos, and two-site sweeps as a generator of sweep records that never
-prints (the pipeline draws progress and writes checkpoints).
+"""The ground-state search in one charge sector: environments and the one- and two-site
+effective Hamiltonians, restarted Lanczos, and two-site or single-site (subspace expansion)
+sweeps as a generator of sweep records that never prints (the pipeline draws progress and writes
+checkpoints).
 """
 
 from mps.solver.krylov import EigenResult, lowest_eigenpair

@@ -1,4 +1,6 @@
-"""Two-site ground-state sweeps (White, PRL 69, 2863 (1992)) on charge-labelled MPS.
+"""Ground-state sweeps on charge-labelled MPS: two-site updates (White, PRL 69, 2863 (1992)) or
+single-site updates with subspace expansion (Hubig, McCulloch, Schollwoeck and Wolf, PRB 91,
+155115 (2015)), chosen by ``SweepSettings.update`` (``auto``: :func:`default_update`).
 
 A sweep moves the two-site window left to right and back. At every bond the effective
 Hamiltonian's lowest eigenvector (restarted Lanczos, warm-started from the current two-site
@@ -6,7 +8,9 @@ tensor) replaces the two site tensors; an SVD ranked across all charge sectors t
 the stage's bond cap and discarded-weight threshold. In stages with ``admix`` > 0 a small random
 admixture in every allowed block of the two-site tensor lets charge sectors that the state does
 not yet hold appear on the bond (a simple form of the perturbation of White, PRB 72, 180403
-(2005)); the last stage normally runs without it.
+(2005)); the last stage normally runs without it. A single-site sweep visits sites 0..L-2 and
+then L-1..1 (the same 2(L-1) steps) and grows bonds by subspace expansion instead of admixture
+(``admix`` is not used).
 
 The search is a generator: it yields one :class:`SweepRecord` after every full sweep and never
 prints. Its resumable position (:class:`Progress`) together with the state is all a checkpoint

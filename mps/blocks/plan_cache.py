@@ -1,0 +1,74 @@
+"""A least-recently-used cache of contraction plans, bounded by the memory of their arrays."""
+
+from __future__ import annotations
+
+import time
+from collections import OrderedDict
+from typing import NamedTuple
+
+
+class CacheInfo(NamedTuple):
+    hits: int
+    misses: int
+    plans: int
+    nbytes: int
+    build_seconds: float
+
+
+class PlanCache:
+    """Least-recently-used contraction plans, bounded by the memory of their arrays.
+
+    A plan without index maps holds a few numbers per block, so thousands are kept and sweeps
+    that revisit the same block structures (a converged stage) plan nothing; a plan with maps
+    (:meth:`with_maps`, for the effective Hamiltonian) at bond 512 weighs tens of megabytes, and
+    only a few of those are kept.
+    """
+
+    def __init__(self, build, max_bytes: int):
+        self.build, self.max_bytes = build, max_bytes
+        self.plans: OrderedDict = OrderedDict()
+        self.nbytes = self.hits = self.misses = 0
+        self.build_seconds = 0.0      # wall time spent building plans (the bench's planning share)
+
+    @staticmethod
+    def weight(plan) -> int:
+        return plan.nbytes
+
+    def with_maps(self, *key):
+        """The plan of ``key`` with its index maps built (for plans run many times)."""
+        plan = self(*key)
+        if plan.maps is None:
+            before = self.weight(plan)
+            t0 = time.perf_counter()
+            plan.build_maps()
+            self.build_seconds += time.perf_counter() - t0
+            self.nbytes += self.weight(plan) - before
+            self._evict()
+        return plan
+
+    def _evict(self) -> None:
+        while self.nbytes > self.max_bytes and len(self.plans) > 1:
+            _, old = self.plans.popitem(last=False)
+            self.nbytes -= self.weight(old)
+
+    def __call__(self, *key):
+        plan = self.plans.get(key)
+        if plan is not None:
+            self.hits += 1
+            self.plans.move_to_end(key)
+            return plan
+        self.misses += 1
+        t0 = time.perf_counter()
+        plan = self.build(*key)
+        self.build_seconds += time.perf_counter() - t0
+        self.plans[key] = plan
+        self.nbytes += self.weight(plan)
+        self._evict()
+        return plan
+
+    def cache_info(self) -> CacheInfo:
+        return CacheInfo(self.hits, self.misses, len(self.plans), self.nbytes, self.build_seconds)
+
+    def cache_clear(self) -> None:
+        self.plans.clear()
+        self.nbytes = 0
