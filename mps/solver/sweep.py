@@ -159,6 +159,7 @@ class SectorSweeper:
         self._pairs: dict[int, BlockTensor] = {}
         self.flops = 0      # multiply-adds x 2 of the planned contractions run by the bond steps
         self.update = default_update(mpo.phys.dim) if settings.update == "auto" else settings.update
+        self._last_spectra = None     # Schmidt values after the previous sweep (single-site convergence)
         self._build_environments()
 
     # ------------------------------------------------------------------ environments
@@ -271,6 +272,26 @@ class SectorSweeper:
         p.step, p.step_truncation, p.step_energy, p.step_seconds = 0, 0.0, math.nan, 0.0
         return energy, worst, time.perf_counter() - t0
 
+    def _spectra_settled(self) -> bool:
+        """Single-site sweeps settle the energy before the smallest Schmidt values, so they also
+        need every bond's Schmidt values to have moved by less than max(sqrt(discard), 1e-8)
+        since the last sweep (values below sqrt(discard) are below the truncation's own
+        resolution). Two-site sweeps are judged by the energy alone, as before."""
+        now = [s.as_dict() if s is not None else {} for s in self.state.spectra]
+        before, self._last_spectra = self._last_spectra, now
+        if self.update != "single-site":
+            return True
+        if before is None:
+            return False
+        change = 0.0
+        for old, new in zip(before, now):
+            for q in set(old) | set(new):
+                a, b = np.sort(old.get(q, np.zeros(0)))[::-1], np.sort(new.get(q, np.zeros(0)))[::-1]
+                n = max(a.size, b.size)
+                diff = np.abs(np.pad(a, (0, n - a.size)) - np.pad(b, (0, n - b.size)))
+                change = max(change, float(diff.max(initial=0.0)))
+        return change < max(math.sqrt(self.settings.discard), 1e-8)
+
     # ------------------------------------------------------------------ driver
     def run(self, on_bond: Callable[[int, int], None] | None = None,
             should_stop: Callable[[], bool] | None = None) -> Iterator[SweepRecord]:
@@ -291,8 +312,9 @@ class SectorSweeper:
             energy, worst, seconds = self._sweep(stage, on_bond, should_stop)
             delta = energy - p.energy if math.isfinite(p.energy) else math.nan
             last = p.stage == len(stages) - 1
+            settled = self._spectra_settled()
             p.converged = bool(last and stage.admix == 0 and math.isfinite(delta)
-                               and abs(delta) < self.settings.energy_tol)
+                               and abs(delta) < self.settings.energy_tol and settled)
             p.sweep += 1
             p.in_stage += 1
             p.energy = energy
