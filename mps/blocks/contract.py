@@ -13,12 +13,13 @@ applies the same operator many times pays for it once.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import cached_property
+from functools import cached_property, lru_cache
+from typing import NamedTuple
 
 import numpy as np
 
 from mps.blocks.charges import FusionMap, Leg, fuse
-from mps.blocks.kernels import block_map, is_identity, pack_blocks, small_products, unpack_blocks
+from mps.blocks.kernels import pack_blocks, repack_blocks, small_products, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import plan_places
 from mps.blocks.tensor import BlockTensor, layout
@@ -40,8 +41,7 @@ class _Group:
     c_start: int
 
 
-@dataclass(frozen=True)
-class Placement:
+class Placement(NamedTuple):
     """Where the blocks of one operand (or of the result) sit in the packed group matrices:
     block b's rows run over legs ``rows``, its columns over ``cols``, and its top-left entry is
     packed position ``dest[b]`` of a matrix with ``ld[b]`` columns (-1: in no group). ``size``
@@ -63,33 +63,16 @@ class Placement:
         """Flat data of the result from the packed products (zero where no group lands)."""
         return unpack_blocks(packed, self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld)
 
-    def gather(self) -> np.ndarray | None:
-        """gather[i] = flat position of packed entry i; None when that is the identity."""
-        idx = block_map(self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld, self.size, False)
-        return None if is_identity(idx, int(self.offsets[-1])) else idx
 
-    def scatter(self) -> np.ndarray | None:
-        """s[j] = packed position of flat entry j (``size``, the zero slot, where no group
-        lands); None when the packed products already are the flat data."""
-        flat = int(self.offsets[-1])
-        spots = block_map(self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld, flat, True,
-                          self.size)
-        return None if self.size == flat and is_identity(spots, flat) else spots
-
-
-@dataclass(eq=False)
+@dataclass(frozen=True)
 class ContractionPlan:
     """Everything needed to contract two structures.
 
     The operands are packed into one buffer of group matrices each (group after group, C order)
     and the products land in one packed buffer of ``packed_size`` entries followed by a single
-    zero. A plan that runs once copies blocks straight into place (:class:`Placement`); a plan
-    that runs many times (the effective Hamiltonian) also gets entry-by-entry index maps
-    (:meth:`build_maps`): ``gather_a[i]`` is the position in A's flat data of packed entry i
-    (likewise ``gather_b``; None when the data is already in packed order), and
-    ``out_from_packed[j]`` the packed position of entry j of the result's flat data (the zero
-    slot for entries no group produces; None when the packed buffer already is the result).
-    Chained contractions compose these maps into one gather per step (:class:`PlannedChain`).
+    zero. Where every block goes is held per block (:class:`Placement`), so building a plan costs
+    time proportional to the number of blocks, and running it is one compiled copy per operand,
+    the group products, and one compiled copy back.
     """
 
     out_legs: tuple[Leg, ...]
@@ -100,34 +83,12 @@ class ContractionPlan:
     place_a: Placement
     place_b: Placement
     place_o: Placement | None          # None: the result is a scalar
-    maps: tuple | None = None
-
-    def build_maps(self) -> None:
-        if self.maps is None:
-            self.maps = (self.place_a.gather(), self.place_b.gather(),
-                         self.place_o.scatter() if self.place_o is not None else None)
-
-    @property
-    def gather_a(self) -> np.ndarray | None:
-        self.build_maps()
-        return self.maps[0]
-
-    @property
-    def gather_b(self) -> np.ndarray | None:
-        self.build_maps()
-        return self.maps[1]
-
-    @property
-    def out_from_packed(self) -> np.ndarray | None:
-        self.build_maps()
-        return self.maps[2]
 
     @property
     def nbytes(self) -> int:
         """Memory held by the plan's arrays (the cache's weight)."""
         arrays = [self.group_array] + [getattr(p, f) for p in (self.place_a, self.place_b, self.place_o)
                                        if p is not None for f in ("dest", "ld")]
-        arrays += [m for m in (self.maps or ()) if m is not None]
         return sum(x.nbytes for x in arrays) + 1024
 
     @cached_property
@@ -190,21 +151,20 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
     out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
     lay_o = layout(out_legs, out_charge) if out_legs else None
-    rows_a, mids_a, mids_b, cols_b = _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b)
-    groups, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = plan_places(
+    rows_a, mids_a, mids_b, cols_b = _axes(free_a), _axes(tuple(axes_a)), _axes(tuple(axes_b)), _axes(free_b)
+    groups, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = plan_places(
         _arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o), len(free_a),
         fa.arrays, fm.arrays, fb.arrays)
     if holes[0] or holes[1]:
         raise AssertionError("contraction plan left a hole in a group matrix")
-    g = groups
-    pa, pb = int(g[:, 0] @ g[:, 1]), int(g[:, 1] @ g[:, 2])
-    pc = int(g[:, 0] @ g[:, 2]) if len(g) else 0
+    pa, pb, pc = sizes.tolist()
     place_a = Placement(lay_a.shape_array, lay_a.offsets, rows_a, mids_a, dest_a, ld_a, pa)
     place_b = Placement(lay_b.shape_array, lay_b.offsets, mids_b, cols_b, dest_b, ld_b, pb)
     place_o = None
     if out_legs:
         na = len(free_a)
-        place_o = Placement(lay_o.shape_array, lay_o.offsets, _axes(range(na)), _axes(range(na, len(out_legs))),
+        place_o = Placement(lay_o.shape_array, lay_o.offsets, _axes(tuple(range(na))),
+                            _axes(tuple(range(na, len(out_legs)))),
                             dest_o, ld_o, pc)
     return ContractionPlan(out_legs, out_charge, groups, pc, lay_o.size if out_legs else 1,
                            place_a, place_b, place_o)
@@ -217,6 +177,7 @@ def _arrays(lay) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     return _NO_BLOCKS if lay is None else (lay.key_array, lay.shape_array, lay.offsets)
 
 
+@lru_cache(maxsize=1024)
 def _axes(axes: tuple[int, ...]) -> np.ndarray:
     return np.array(axes, dtype=np.int64)
 
@@ -224,10 +185,6 @@ def _axes(axes: tuple[int, ...]) -> np.ndarray:
 plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
 """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B (cached by structure):
 ``plan_contraction(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)``."""
-
-
-def _packed(data: np.ndarray, gather: np.ndarray | None) -> np.ndarray:
-    return data if gather is None else np.take(data, gather)
 
 
 def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype,
@@ -242,13 +199,6 @@ def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype,
                   pb[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
                   out=pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
     return pc
-
-
-def unpack(plan: ContractionPlan, pc: np.ndarray) -> np.ndarray:
-    """Flat data of the result (a new array) from the packed products."""
-    if plan.out_from_packed is None:
-        return pc[:plan.packed_size].copy()
-    return np.take(pc, plan.out_from_packed)
 
 
 def run_plan(plan: ContractionPlan, a: BlockTensor, b: BlockTensor):
@@ -266,8 +216,9 @@ class PlannedChain:
     ``steps`` are ``(constant, axes of the running tensor, axes of the constant, running_first)``;
     each step contracts the previous result with its constant (as the first operand of the
     contraction when ``running_first``). The constants are packed once, and between steps the
-    result is never laid out as blocks: the unpacking map of one step and the packing map of the
-    next are composed into a single gather. Used for the effective Hamiltonian, whose Krylov
+    result is never laid out as blocks: one compiled pass moves every block from its place among
+    one step's products to its place in the next step's packing
+    (:func:`mps.blocks.kernels.repack_blocks`). Used for the effective Hamiltonian, whose Krylov
     iterations repeat the same chain many times.
     """
 
@@ -277,29 +228,19 @@ class PlannedChain:
         for const, ax_run, ax_const, run_first in steps:
             ax_run = tuple(int(i) % len(legs) for i in ax_run)
             ax_const = tuple(int(i) % const.ndim for i in ax_const)
-            plan = (plan_contraction.with_maps(legs, charge, ax_run, const.legs, const.charge, ax_const)
-                    if run_first else
-                    plan_contraction.with_maps(const.legs, const.charge, ax_const, legs, charge, ax_run))
+            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
+                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
             self.plans.append(plan)
-            self.constants.append(_packed(const.data, plan.gather_b if run_first else plan.gather_a))
+            self.constants.append((plan.place_b if run_first else plan.place_a).pack(const.data))
             self.first.append(run_first)
             legs, charge = plan.out_legs, plan.out_charge
         self.out_legs, self.out_charge = legs, charge
-        first = self.plans[0]
-        self.gathers = [first.gather_a if self.first[0] else first.gather_b]
-        for prev, plan, run_first in zip(self.plans, self.plans[1:], self.first[1:]):
-            nxt = plan.gather_a if run_first else plan.gather_b
-            if prev.out_from_packed is None:
-                self.gathers.append(nxt)
-            elif nxt is None:
-                self.gathers.append(prev.out_from_packed)
-            else:
-                self.gathers.append(prev.out_from_packed[nxt])
+        self.running = [p.place_a if f else p.place_b for p, f in zip(self.plans, self.first)]
         self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants])
 
         # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
         # every application
-        self._packed_in = [np.empty(g.size if g is not None else 0, dtype=self.dtype) for g in self.gathers]
+        self._packed_in = [np.empty(p.size, dtype=self.dtype) for p in self.running]
         self._products = [np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
 
     @property
@@ -308,17 +249,16 @@ class PlannedChain:
 
     def __call__(self, data: np.ndarray) -> np.ndarray:
         """Flat data of the final result for the running tensor's flat ``data``."""
-        x = np.asarray(data, dtype=self.dtype)      # a real tensor against complex constants
+        x = self.running[0].pack(np.asarray(data, dtype=self.dtype))   # a real tensor, complex constants
         last = len(self.plans) - 1
         for k, plan in enumerate(self.plans):
-            if self.gathers[k] is not None:
-                x = np.take(x, self.gathers[k], out=self._packed_in[k], mode="clip")  # unbuffered
             a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
-            x = gemm_groups(plan, a, b, self.dtype, self._products[k])
+            products = gemm_groups(plan, a, b, self.dtype, self._products[k])
             if k == last:
-                return unpack(plan, x)
-            if self.gathers[k + 1] is None and plan.out_from_packed is None:
-                x = x[:plan.packed_size]
+                return plan.place_o.unpack(products)
+            o, n = plan.place_o, self.running[k + 1]
+            x = repack_blocks(products, o.shapes, o.rows, o.cols, o.dest, o.ld, n.rows, n.cols, n.dest, n.ld,
+                              self._packed_in[k + 1])
         return x
 
 

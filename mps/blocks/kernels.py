@@ -103,17 +103,6 @@ def covered_entries(shapes, dest):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True)
-def is_identity(idx, size):  # pragma: no cover - compiled
-    """idx == arange(size), stopping at the first mismatch."""
-    if len(idx) != size:
-        return False
-    for i in range(size):
-        if idx[i] != i:
-            return False
-    return True
-
-
-@njit(cache=True, nogil=True)
 def charge_keys(charges, shift, bias):  # pragma: no cover - compiled
     """One int64 per charge vector, increasing with the vector's lexicographic order."""
     n, k = charges.shape
@@ -289,9 +278,8 @@ def small_products(pa, pb, pc, groups):  # pragma: no cover - compiled
 @njit(cache=True, nogil=True)
 def pack_blocks(data, shapes, offsets, row_axes, col_axes, dest, ld, size):  # pragma: no cover
     """Copy every block with ``dest[b] >= 0`` into its rectangle of the packed group matrices
-    (the data moves of :func:`block_map` without building the index map: for contractions that
-    run once, building the map would cost as much as the copy). The blocks must cover the
-    packed buffer."""
+    (the data moves of :func:`block_map` without building an index map, which would cost as
+    much as the copy and then be read again). The blocks must cover the packed buffer."""
     out = np.empty(size, data.dtype)
     nb, r = shapes.shape
     big = 1
@@ -345,4 +333,66 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
             dst = dest[b] + i * ld[b]
             for j in range(nc):
                 out[src + csum[j]] = packed[dst + j]
+    return out
+
+
+@njit(cache=True, nogil=True)
+def _weights(shape, rows, cols, ld, out):  # pragma: no cover - compiled
+    """out[a]: how far one step along axis a moves in a packed group matrix with ``ld`` columns
+    whose rows run over legs ``rows`` and columns over legs ``cols`` (C order)."""
+    s = 1
+    for j in range(len(cols) - 1, -1, -1):
+        out[cols[j]] = s
+        s *= shape[cols[j]]
+    s = ld
+    for j in range(len(rows) - 1, -1, -1):
+        out[rows[j]] = s
+        s *= shape[rows[j]]
+
+
+@njit(cache=True, nogil=True)
+def repack_blocks(src, shapes, src_rows, src_cols, src_dest, src_ld,
+                  dst_rows, dst_cols, dst_dest, dst_ld, out):  # pragma: no cover - compiled
+    """Move every block from its place among one product's group matrices (``src_*``; dest -1:
+    no group produced it, so it is zero) to its place in the next product's packing (``dst_*``),
+    in one pass: the unpacking of one contraction and the packing of the next, without the flat
+    array in between and without index maps. Returns ``out``."""
+    nb, r = shapes.shape
+    ws = np.empty(r, np.int64)
+    wd = np.empty(r, np.int64)
+    idx = np.zeros(r, np.int64)
+    for b in range(nb):
+        if dst_dest[b] < 0:
+            continue
+        _weights(shapes[b], dst_rows, dst_cols, dst_ld[b], wd)
+        _weights(shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
+        zero = src_dest[b] < 0
+        ps = src_dest[b]
+        pd = dst_dest[b]
+        nl = shapes[b, r - 1]
+        wsl = ws[r - 1]
+        wdl = wd[r - 1]
+        count = 1
+        for a in range(r - 1):
+            count *= shapes[b, a]
+        for a in range(r):
+            idx[a] = 0
+        for _ in range(count):
+            if zero:
+                for t in range(nl):
+                    out[pd + t * wdl] = 0
+            else:
+                for t in range(nl):
+                    out[pd + t * wdl] = src[ps + t * wsl]
+            j = r - 2
+            while j >= 0:
+                idx[j] += 1
+                ps += ws[j]
+                pd += wd[j]
+                if idx[j] < shapes[b, j]:
+                    break
+                ps -= idx[j] * ws[j]
+                pd -= idx[j] * wd[j]
+                idx[j] = 0
+                j -= 1
     return out

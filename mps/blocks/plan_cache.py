@@ -18,10 +18,8 @@ class CacheInfo(NamedTuple):
 class PlanCache:
     """Least-recently-used contraction plans, bounded by the memory of their arrays.
 
-    A plan without index maps holds a few numbers per block, so thousands are kept and sweeps
-    that revisit the same block structures (a converged stage) plan nothing; a plan with maps
-    (:meth:`with_maps`, for the effective Hamiltonian) at bond 512 weighs tens of megabytes, and
-    only a few of those are kept.
+    A plan holds a few numbers per block, so many thousands are kept and sweeps that revisit the
+    same block structures (a converged stage) plan nothing.
     """
 
     def __init__(self, build, max_bytes: int):
@@ -33,18 +31,6 @@ class PlanCache:
     @staticmethod
     def weight(plan) -> int:
         return plan.nbytes
-
-    def with_maps(self, *key):
-        """The plan of ``key`` with its index maps built (for plans run many times)."""
-        plan = self(*key)
-        if plan.maps is None:
-            before = self.weight(plan)
-            t0 = time.perf_counter()
-            plan.build_maps()
-            self.build_seconds += time.perf_counter() - t0
-            self.nbytes += self.weight(plan) - before
-            self._evict()
-        return plan
 
     def _evict(self) -> None:
         while self.nbytes > self.max_bytes and len(self.plans) > 1:

@@ -1,11 +1,12 @@
-"""The compiled core of contraction planning: groups and index maps of a contraction in one call.
+"""The compiled core of contraction planning: groups and block places of a contraction in one call.
 
 Input is plain arrays: the block layouts of A, B and the result (sector keys, shapes, offsets),
 and the fusion maps of A's free legs (rows), the contracted legs (middle) and B's free legs
 (columns) as (codes, sector, offset, radix, fused sizes) -- see
 :class:`mps.blocks.charges.FusionMap`. Every block finds its fused row/middle/column sector and
 offset by bisection on the mixed-radix codes; the groups are the middle sectors met by both
-operands, in sector order; the entry-by-entry maps come from :func:`mps.blocks.kernels.block_map`.
+operands, in sector order; each block's place is its group's start plus row offset x width plus
+column offset. The data moves themselves are compiled copies in :mod:`mps.blocks.kernels`.
 The Python planner (:mod:`mps.blocks.contract`) only wraps the result.
 """
 
@@ -61,12 +62,12 @@ def _placed(group_of, sec, inside_row, inside_col, groups, width_col, start_col)
 
 @njit(cache=True, nogil=True)
 def plan_places(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mid, f_col):  # pragma: no cover
-    """Groups (ngroups, 6: nrow, nmid, ncol, a_start, b_start, c_start) and where every block of
-    A, B and the result sits in them: (dest, ld) per operand (dest -1: the block meets no group),
-    plus flags (A has a hole, B has a hole). Blocks never overlap in their group matrices, so a
-    packed buffer has no hole exactly when its blocks' sizes add up to its length. Work is
-    proportional to the number of blocks; the entry-by-entry maps are built only for plans that
-    are run many times (:func:`mps.blocks.kernels.block_map`)."""
+    """Groups (ngroups, 6: nrow, nmid, ncol, a_start, b_start, c_start), the packed sizes of A, B
+    and the products, where every block of A, B and the result sits in them: (dest, ld) per
+    operand (dest -1: the block meets no group), and flags (A has a hole, B has a hole). Blocks
+    never overlap in their group matrices, so a packed buffer has no hole exactly when its
+    blocks' sizes add up to its length. Work is proportional to the number of blocks, not of
+    entries."""
     keys_a, shapes_a, offs_a = lay_a
     keys_b, shapes_b, offs_b = lay_b
     keys_o, shapes_o, offs_o = lay_o
@@ -99,9 +100,11 @@ def plan_places(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mi
             groups[g, 0] = f_row[4][row_of_mid[m]]
             groups[g, 1] = f_mid[4][m]
             groups[g, 2] = f_col[4][col_of_mid[m]]
-    pa = _starts(groups[:, 0] * groups[:, 1], groups[:, 3])
-    pb = _starts(groups[:, 1] * groups[:, 2], groups[:, 4])
-    _starts(groups[:, 0] * groups[:, 2], groups[:, 5])
+    sizes = np.empty(3, np.int64)
+    sizes[0] = _starts(groups[:, 0] * groups[:, 1], groups[:, 3])
+    sizes[1] = _starts(groups[:, 1] * groups[:, 2], groups[:, 4])
+    sizes[2] = _starts(groups[:, 0] * groups[:, 2], groups[:, 5])
+    pa, pb = sizes[0], sizes[1]
 
     dest_a, ld_a = _placed(group_of_mid, ms_a, ro_a, mo_a, groups, 1, 3)
     dest_b, ld_b = _placed(group_of_mid, ms_b, mo_b, co_b, groups, 2, 4)
@@ -111,7 +114,7 @@ def plan_places(lay_a, row_a, mid_a, lay_b, mid_b, col_b, lay_o, na, f_row, f_mi
     holes = np.zeros(2, np.bool_)
     holes[0] = covered_entries(shapes_a, dest_a) != pa
     holes[1] = covered_entries(shapes_b, dest_b) != pb
-    return groups, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes
+    return groups, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes
 
 
 @njit(cache=True, nogil=True)

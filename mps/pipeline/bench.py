@@ -13,8 +13,7 @@
   tensor and every effective-Hamiltonian application, counted from the group shapes; the
   environment updates, about one application's worth per bond step, are not counted, so the
   figure errs low) over (sweep seconds x the matmul rate measured in the same process).
-- ``planning_share``: per bond, seconds spent building contraction plans (block placements, and
-  the index maps of the effective Hamiltonian's chain) over sweep seconds.
+- ``planning_share``: per bond, seconds spent building contraction plans over sweep seconds.
 - ``peak_rss_mb``: peak resident memory of the process that ran the largest-bond sweep of the
   series (each sweep runs in a fresh process); the full bench adds one bond-1024 sweep of a
   60-site chain with its own peak memory (``large_bond``).
