@@ -142,10 +142,11 @@ def leg_from_states(state_charges: np.ndarray, flow: int) -> tuple[Leg, np.ndarr
 class FusionMap:
     """Where every combination of sectors of a group of legs sits inside the fused leg.
 
-    ``combos`` (n, nlegs) lists every combination of sector indices whose block is non-empty, sorted
-    by its mixed-radix code (:meth:`codes_of`); ``sector`` and ``offset`` give its fused sector and
-    its offset inside that sector. :meth:`locate` looks many combinations up at once (the
-    contraction planner); ``entries[combo] = (fused sector, offset, shape)`` is the same as a dict.
+    ``combos`` (n, nlegs) lists every combination of sector indices whose block is non-empty, in
+    order of its mixed-radix code ``codes`` (its index among all combinations in C order, see
+    :attr:`radix`); ``sector`` and ``offset`` give its fused sector and its offset inside that
+    sector. The compiled planner looks combinations up by bisection on the codes (:attr:`arrays`);
+    ``entries[combo] = (fused sector, offset, shape)`` is the same as a dict.
     """
 
     legs: tuple[Leg, ...]
@@ -160,23 +161,10 @@ class FusionMap:
         """Multipliers of the mixed-radix code of a combination (C order over the legs)."""
         return mixed_radix([leg.nsec for leg in self.legs])
 
-    def codes_of(self, combos: np.ndarray) -> np.ndarray:
-        combos = np.asarray(combos, dtype=np.int64)
-        return combos.reshape(len(combos), len(self.legs)) @ self.radix
-
     @cached_property
     def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(codes in increasing order, sector, offset, radix, fused sizes) for compiled look-ups."""
         return self.codes, self.sector, self.offset, self.radix, self.fused.size_array
-
-    def locate(self, combos: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(fused sector, offset) of each row of ``combos``; sector -1 for a combination not present."""
-        codes = self.codes_of(combos)
-        if not len(self.codes):
-            return np.full(len(codes), -1, dtype=np.int64), np.zeros(len(codes), dtype=np.int64)
-        pos = np.minimum(np.searchsorted(self.codes, codes), len(self.codes) - 1)
-        hit = self.codes[pos] == codes
-        return np.where(hit, self.sector[pos], -1), np.where(hit, self.offset[pos], 0)
 
     @cached_property
     def entries(self) -> dict[tuple[int, ...], tuple[int, int, tuple[int, ...]]]:

@@ -126,7 +126,7 @@ def _new_directions(us, kept, more, room: int, most: int, rel: float = 1e-10) ->
     widening after projecting out the kept states, at most ``min(room, most)`` over all sectors,
     only those with singular value above ``rel`` times the strongest."""
     cands = []
-    for i, (u, k, m) in enumerate(zip(us, kept, more)):
+    for u, k, m in zip(us, kept, more):
         if m.shape[1] == 0 or m.shape[0] == k:
             cands.append((np.zeros((m.shape[0], 0), dtype=m.dtype), np.zeros(0)))
             continue
@@ -142,7 +142,7 @@ def _new_directions(us, kept, more, room: int, most: int, rel: float = 1e-10) ->
     picked = []
     budget = limit
     for ue, se in cands:
-        n = min(int(np.count_nonzero(se >= floor)), budget, ue.shape[0] - 0)
+        n = min(int(np.count_nonzero(se >= floor)), budget)
         picked.append(ue[:, :n])
         budget -= n
     return picked

@@ -42,41 +42,44 @@ def _axis_sums(shape, strides, axes, out):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True)
-def block_map(shapes, offsets, row_axes, col_axes, dest, ld, size, scatter, fill=-1):  # pragma: no cover
+def _block_sums(shape, row_axes, col_axes, strides, rsum, csum):  # pragma: no cover - compiled
+    """C-order strides of one block, then the offsets of its rows and columns (see
+    :func:`_axis_sums`); returns (number of rows, number of columns)."""
+    s = 1
+    for a in range(len(shape) - 1, -1, -1):
+        strides[a] = s
+        s *= shape[a]
+    return _axis_sums(shape, strides, row_axes, rsum), _axis_sums(shape, strides, col_axes, csum)
+
+
+@njit(cache=True, nogil=True)
+def _largest_block(offsets):  # pragma: no cover - compiled
+    big = 1
+    for b in range(len(offsets) - 1):
+        big = max(big, offsets[b + 1] - offsets[b])
+    return big
+
+
+@njit(cache=True, nogil=True)
+def block_map(shapes, offsets, row_axes, col_axes, dest, ld, size, scatter):  # pragma: no cover
     """Packed position <-> flat position of every entry of every block with ``dest[b] >= 0``.
 
     shapes (nb, r), offsets (nb,) flat start of each block, dest (nb,) packed start of each block's
     rectangle (-1: the block is not packed), ld (nb,) leading dimension of its group matrix.
     ``scatter`` False: returns g of length ``size`` with g[packed] = flat (a gather map).
     ``scatter`` True: returns s of length ``size`` (the flat size) with s[flat] = packed. Entries no
-    block reaches hold ``fill``; the array is written once when the blocks cover all of it.
+    block reaches hold -1; the array is written once when the blocks cover all of it.
     """
     nb, r = shapes.shape
-    covered = 0
-    big = 1
-    for b in range(nb):
-        rows = 1
-        cols = 1
-        for a in row_axes:
-            rows *= shapes[b, a]
-        for a in col_axes:
-            cols *= shapes[b, a]
-        big = max(big, rows, cols)
-        if dest[b] >= 0:
-            covered += rows * cols
-    out = np.empty(size, np.int64) if covered == size else np.full(size, fill, np.int64)
+    out = np.empty(size, np.int64) if covered_entries(shapes, dest) == size else np.full(size, -1, np.int64)
+    big = _largest_block(offsets)
     rsum = np.empty(big, np.int64)
     csum = np.empty(big, np.int64)
     strides = np.empty(r, np.int64)
     for b in range(nb):
         if dest[b] < 0:
             continue
-        s = 1
-        for a in range(r - 1, -1, -1):
-            strides[a] = s
-            s *= shapes[b, a]
-        nr = _axis_sums(shapes[b], strides, row_axes, rsum)
-        nc = _axis_sums(shapes[b], strides, col_axes, csum)
+        nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
         for i in range(nr):
             src = offsets[b] + rsum[i]
             dst = dest[b] + i * ld[b]
@@ -282,21 +285,14 @@ def pack_blocks(data, shapes, offsets, row_axes, col_axes, dest, ld, size):  # p
     much as the copy and then be read again). The blocks must cover the packed buffer."""
     out = np.empty(size, data.dtype)
     nb, r = shapes.shape
-    big = 1
-    for b in range(nb):
-        big = max(big, offsets[b + 1] - offsets[b])
+    big = _largest_block(offsets)
     rsum = np.empty(big, np.int64)
     csum = np.empty(big, np.int64)
     strides = np.empty(r, np.int64)
     for b in range(nb):
         if dest[b] < 0:
             continue
-        s = 1
-        for a in range(r - 1, -1, -1):
-            strides[a] = s
-            s *= shapes[b, a]
-        nr = _axis_sums(shapes[b], strides, row_axes, rsum)
-        nc = _axis_sums(shapes[b], strides, col_axes, csum)
+        nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
         for i in range(nr):
             src = offsets[b] + rsum[i]
             dst = dest[b] + i * ld[b]
@@ -311,9 +307,7 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
     (no group produced them) are zero."""
     nb, r = shapes.shape
     out = np.empty(offsets[nb], packed.dtype)
-    big = 1
-    for b in range(nb):
-        big = max(big, offsets[b + 1] - offsets[b])
+    big = _largest_block(offsets)
     rsum = np.empty(big, np.int64)
     csum = np.empty(big, np.int64)
     strides = np.empty(r, np.int64)
@@ -322,12 +316,7 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
             for p in range(offsets[b], offsets[b + 1]):
                 out[p] = 0
             continue
-        s = 1
-        for a in range(r - 1, -1, -1):
-            strides[a] = s
-            s *= shapes[b, a]
-        nr = _axis_sums(shapes[b], strides, row_axes, rsum)
-        nc = _axis_sums(shapes[b], strides, col_axes, csum)
+        nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
         for i in range(nr):
             src = offsets[b] + rsum[i]
             dst = dest[b] + i * ld[b]

@@ -26,7 +26,7 @@ from typing import Callable, Iterator
 
 import numpy as np
 
-from mps.blocks.contract import contract, plan_contraction
+from mps.blocks.contract import contract, plan_contraction, run_plan
 from mps.blocks.decompose import scale_leg, svd
 from mps.blocks.expand import widened_svd
 from mps.blocks.tensor import BlockTensor
@@ -177,22 +177,33 @@ class SectorSweeper:
     # ------------------------------------------------------------------ one bond
     def _optimize(self, j: int, stage: Stage, tol: float):
         ts, ws = self.state.tensors, self.mpo.tensors
-        theta = contract(ts[j], ts[j + 1], (2,), (0,))
-        self.flops += plan_contraction(ts[j].legs, ts[j].charge, (2,), ts[j + 1].legs, ts[j + 1].charge, (0,)).flops
+        plan = plan_contraction(ts[j].legs, ts[j].charge, (2,), ts[j + 1].legs, ts[j + 1].charge, (0,))
+        theta = run_plan(plan, ts[j], ts[j + 1])
+        self.flops += plan.flops
         if j not in self._pairs:
             self._pairs[j] = merge_pair(ws[j], ws[j + 1])
         op = two_site_operator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
-        res = lowest_eigenpair(op.matvec, theta.data.astype(op.dtype, copy=False),
+        energy, theta = self._ground_state(op, theta, tol)
+        cut = svd(_admix(theta, stage.admix, self.rng), (0, 1), (2, 3), max_bond=stage.bond,
+                  discard=self.settings.discard, min_value=1e-15)
+        return energy, cut, self._record(j + 1, cut.bond.charges, cut.values)
+
+    def _ground_state(self, op, start: BlockTensor, tol: float) -> tuple[float, BlockTensor]:
+        """Lowest eigenpair of the local effective Hamiltonian, warm-started from ``start``."""
+        res = lowest_eigenpair(op.matvec, start.data.astype(op.dtype, copy=False),
                                lanczos_vectors=self.settings.lanczos_vectors, tol=tol,
                                max_restarts=self.settings.lanczos_restarts, rng=self.rng)
         self.flops += op.chain.flops * res.applications
-        theta = _admix(op.wrap(res.vector), stage.admix, self.rng)
-        cut = svd(theta, (0, 1), (2, 3), max_bond=stage.bond, discard=self.settings.discard,
-                  min_value=1e-15)
-        norm = math.sqrt(sum(float(np.sum(v**2)) for v in cut.values))
-        values = tuple(v / norm for v in cut.values)
-        self.state.spectra[j + 1] = BondSpectrum(cut.bond.charges, values)
-        return res.value, cut, values
+        return res.value, op.wrap(res.vector)
+
+    def _record(self, bond: int, charges, values) -> tuple[np.ndarray, ...]:
+        """Normalise a bond's kept singular values (one array per sector of ``charges``), store
+        the non-empty sectors as the bond's Schmidt values and return the normalised arrays."""
+        norm = math.sqrt(sum(float(np.sum(v**2)) for v in values))
+        values = tuple(v / norm for v in values)
+        self.state.spectra[bond] = BondSpectrum(tuple(q for q, v in zip(charges, values) if v.size),
+                                                tuple(v for v in values if v.size))
+        return values
 
     def _pair_step(self, j: int, rightward: bool, stage: Stage, tol: float) -> tuple[float, float]:
         """Two-site update of sites j, j+1; the centre moves to j+1 (rightward) or j."""
@@ -222,21 +233,14 @@ class SectorSweeper:
         rightward = step < n - 1
         j = step if rightward else 2 * (n - 1) - step
         op = one_site_operator(self.lefts[j], ws[j], self.rights[j], ts[j])
-        res = lowest_eigenpair(op.matvec, ts[j].data.astype(op.dtype, copy=False),
-                               lanczos_vectors=self.settings.lanczos_vectors, tol=tol,
-                               max_restarts=self.settings.lanczos_restarts, rng=self.rng)
-        self.flops += op.chain.flops * res.applications
-        m = op.wrap(res.vector)
+        energy, m = self._ground_state(op, ts[j], tol)
         extra = expansion_right(self.lefts[j], m, ws[j]) if rightward else expansion_left(m, ws[j], self.rights[j])
         # the neighbour's other legs bound the rank the new bond can carry
         nb = ts[j + 1] if rightward else ts[j - 1]
         room = nb.legs[1].dim * (nb.legs[2].dim if rightward else nb.legs[0].dim)
         cut = widened_svd(m, extra, 2, "columns" if rightward else "rows", min(stage.bond, room),
                           self.settings.discard, 1e-15)
-        norm = math.sqrt(sum(float(np.sum(v**2)) for v in cut.values))
-        charges = cut.isometry.legs[-1 if rightward else 0].charges
-        self.state.spectra[j + 1 if rightward else j] = BondSpectrum(
-            tuple(q for q, v in zip(charges, cut.values) if v.size), tuple(v / norm for v in cut.values if v.size))
+        self._record(j + 1 if rightward else j, cut.isometry.legs[-1 if rightward else 0].charges, cut.values)
         ts[j] = cut.isometry
         if rightward:
             ts[j + 1] = contract(cut.rest, ts[j + 1], (1,), (0,))
@@ -245,7 +249,7 @@ class SectorSweeper:
             ts[j - 1] = contract(ts[j - 1], cut.rest, (2,), (0,))
             self.rights[j - 1] = grow_right(self.rights[j], ts[j], ws[j])
         self.state.center = j + 1 if rightward else j - 1
-        return res.value, cut.discarded
+        return energy, cut.discarded
 
     def _sweep(self, stage: Stage, on_bond, should_stop) -> tuple[float, float, float]:
         """One sweep (left to right and back), starting at bond step ``progress.step``; returns the
@@ -277,10 +281,10 @@ class SectorSweeper:
         need every bond's Schmidt values to have moved by less than max(sqrt(discard), 1e-8)
         since the last sweep (values below sqrt(discard) are below the truncation's own
         resolution). Two-site sweeps are judged by the energy alone, as before."""
-        now = [s.as_dict() if s is not None else {} for s in self.state.spectra]
-        before, self._last_spectra = self._last_spectra, now
         if self.update != "single-site":
             return True
+        now = [s.as_dict() if s is not None else {} for s in self.state.spectra]
+        before, self._last_spectra = self._last_spectra, now
         if before is None:
             return False
         change = 0.0
