@@ -1,9 +1,11 @@
 """Command line ``chargewise`` (also ``python -m mps``): parse the verb, dispatch, map errors to exit codes.
 
 Exit codes: 0 success; 2 bad input (a refused config field, a bad path or option: one line on
-stderr naming it, never a traceback); 1 internal failure (one line; the traceback too when the
-environment variable ``CHARGEWISE_DEBUG`` is set; for ``scan``: some points failed, each recorded in
-scan.csv); 130 interrupted. Every verb except ``check``
+stderr naming it, never a traceback); 1 a failure: a run that cannot go on (disk full, a non-finite
+number; one line, the last checkpoint kept), an internal error (one line; the traceback too when the
+environment variable ``CHARGEWISE_DEBUG`` is set), or for ``scan``: some points failed, each
+recorded in scan.csv; 3 stopped by Ctrl-C or SIGTERM, resumable (``chargewise resume`` / the same
+``chargewise scan`` again). Every verb except ``check``
 is carried out by :mod:`mps.pipeline.runner`, imported only when that verb is used.
 """
 
@@ -13,15 +15,18 @@ import argparse
 import importlib
 import math
 import os
+import signal
 import sys
+import threading
 import traceback
 from collections.abc import Callable, Sequence
 from typing import Any
 
 from mps import __version__
 from mps.pipeline.config import load_config, load_mapping
-from mps.pipeline.errors import InputError
+from mps.pipeline.errors import InputError, RunFailure
 from mps.pipeline.schema import dump_config
+from mps.pipeline.signals import EXIT_STOPPED
 
 PROG = "chargewise"
 
@@ -29,6 +34,7 @@ PROG = "chargewise"
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line with ``argv`` (default ``sys.argv[1:]``) and return the exit code."""
     parser = build_parser()
+    _sigterm_like_ctrl_c()
     try:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # --help, --version, usage errors (argparse exits 2)
@@ -38,9 +44,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     except InputError as exc:
         _say(str(exc))
         return 2
+    except RunFailure as exc:
+        _say(str(exc))
+        return 1
     except KeyboardInterrupt:
         _say("interrupted")
-        return 130
+        return EXIT_STOPPED
     except Exception as exc:  # noqa: BLE001 -- last line of defence: one line, exit 1
         lines = str(exc).strip().splitlines()
         detail = f": {lines[0]}" if lines else ""
@@ -53,6 +62,13 @@ def main(argv: Sequence[str] | None = None) -> int:
                 "set CHARGEWISE_DEBUG=1 to see the traceback"
             )
         return 1
+
+
+def _sigterm_like_ctrl_c() -> None:
+    """Outside a run's own handling (see mps.pipeline.signals) SIGTERM stops like Ctrl-C: one line,
+    exit code 3, every file either old or new (all writes are atomic)."""
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGTERM, signal.default_int_handler)
 
 
 def build_parser() -> argparse.ArgumentParser:

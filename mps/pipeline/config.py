@@ -17,14 +17,13 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
-import yaml
-
 from mps.pipeline.errors import ConfigError
-from mps.pipeline.fields import boolean, integer, is_int, kind, real, section, show, yaml_problem
+from mps.pipeline.fields import boolean, integer, is_int, kind, real, section, show
 from mps.pipeline.model_section import read_model
 from mps.pipeline.schema import (
     ANALYSIS_KEYS,
     DEFAULT_ADMIX,
+    DEFAULT_CHECKPOINT_SECONDS,
     DEFAULT_STAGES,
     INIT_CHOICES,
     METHOD_CHOICES,
@@ -40,6 +39,9 @@ from mps.pipeline.schema import (
     SolverConfig,
     Stage,
 )
+from mps.pipeline.yaml_input import read_yaml_file
+
+EXACT_SITES_LIMIT = 5000   # a dense 5000 x 5000 float matrix is 200 MB
 
 
 def load_config(path: str | os.PathLike[str]) -> RunConfig:
@@ -51,28 +53,11 @@ def load_config(path: str | os.PathLike[str]) -> RunConfig:
 
 
 def load_mapping(path: str | os.PathLike[str]) -> Mapping[str, Any]:
-    """The YAML mapping at ``path``, read with the safe loader; not yet validated (a scan config
-    is expanded into points first, see :mod:`mps.pipeline.scan_plan`)."""
-    p = Path(path)
+    """The YAML mapping at ``path``, read by :func:`mps.pipeline.yaml_input.read_yaml_file` (safe,
+    bounded, duplicate keys refused); not yet validated (a scan config is expanded into points
+    first, see :mod:`mps.pipeline.scan_plan`)."""
     where = str(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ConfigError(where, "no such config file") from None
-    except IsADirectoryError:
-        raise ConfigError(where, "is a directory, expected a YAML config file") from None
-    except UnicodeDecodeError:
-        raise ConfigError(where, "is not UTF-8 text") from None
-    except OSError as exc:
-        raise ConfigError(where, f"cannot be read ({exc.strerror or exc})") from None
-    try:
-        data = yaml.safe_load(text)
-    except yaml.constructor.ConstructorError as exc:
-        raise ConfigError(
-            where, f"uses a YAML tag that safe loading refuses (plain data only): {yaml_problem(exc)}"
-        ) from None
-    except yaml.YAMLError as exc:
-        raise ConfigError(where, f"is not valid YAML: {yaml_problem(exc)}") from None
+    data = read_yaml_file(path)
     if data is None:
         raise ConfigError(where, "is empty; expected a mapping with keys " + ", ".join(TOP_KEYS))
     if not isinstance(data, Mapping):
@@ -85,7 +70,7 @@ def load_mapping(path: str | os.PathLike[str]) -> Mapping[str, Any]:
 def parse_config(data: Mapping[str, Any], default_name: str = "run") -> RunConfig:
     """Validate an already-loaded config mapping; ``default_name`` is used when ``name`` is absent."""
     top = section(data, "", TOP_KEYS, required=True)
-    name = _name(top.get("name", default_name))
+    name = check_name(top.get("name", default_name))
     model = read_model(top.get("model"))
     solver = _solver(section(top.get("solver"), "solver", SOLVER_KEYS))
     if solver.method == "exact":
@@ -109,12 +94,24 @@ def config_hash(model_section: ModelConfig | Mapping[str, Any]) -> str:
 # ----------------------------------------------------------------------------- sections
 
 
-def _name(value: Any) -> str:
+def check_name(value: Any) -> str:
+    """The run name: a non-empty string that can be one directory name."""
     if not isinstance(value, str) or not value.strip():
         raise ConfigError("name", f"must be a non-empty string, got {show(value)}")
     if "/" in value or "\\" in value or value in (".", ".."):
         raise ConfigError("name", f"must not contain path separators, got {show(value)}")
+    _path_text(value, "name")
     return value
+
+
+def _path_text(value: str, where: str) -> None:
+    """Refuse text no file name can hold (a NUL, or a lone surrogate from a YAML "\\ud800" escape)."""
+    try:
+        value.encode("utf-8")
+    except UnicodeEncodeError:
+        raise ConfigError(where, f"must be text a file name can hold, got {show(value)}") from None
+    if "\0" in value:
+        raise ConfigError(where, f"must not contain a NUL character, got {show(value)}")
 
 
 def _solver(sec: Mapping[str, Any]) -> SolverConfig:
@@ -164,7 +161,11 @@ def _solver(sec: Mapping[str, Any]) -> SolverConfig:
 
 
 def _check_quadratic(model: ModelConfig) -> None:
-    """``solver.method: exact`` needs a chain the exact engines describe, with one conserved charge."""
+    """``solver.method: exact`` needs a chain the exact engines describe, with one conserved charge,
+    and short enough for their dense L x L matrices (the check below already builds one)."""
+    if model.sites > EXACT_SITES_LIMIT:
+        raise ConfigError("model.sites", f"must be at most {EXACT_SITES_LIMIT} with solver.method exact (the "
+                                         f"exact engines hold dense sites x sites matrices), got {model.sites}")
     fam = model.family_record()
     if len(model.space().charge_names) == 1:
         if fam.single_particle(model.sites, model.couplings, model.options) is not None and not fam.species:
@@ -243,7 +244,14 @@ def _cuts(raw: Any, sites: int) -> str | tuple[int, ...]:
 
 
 def _output(sec: Mapping[str, Any], name: str) -> OutputConfig:
-    out = sec.get("dir", f"runs/{name}")
-    if not isinstance(out, str) or not out.strip():
-        raise ConfigError("output.dir", f"must be a non-empty string, got {show(out)}")
-    return OutputConfig(dir=out, plots=boolean(sec.get("plots", True), "output.plots"))
+    out = check_dir(sec.get("dir", f"runs/{name}"))
+    every = real(sec.get("checkpoint_seconds", DEFAULT_CHECKPOINT_SECONDS), "output.checkpoint_seconds", lo=0.0)
+    return OutputConfig(dir=out, plots=boolean(sec.get("plots", True), "output.plots"), checkpoint_seconds=every)
+
+
+def check_dir(value: Any) -> str:
+    """``output.dir``: a non-empty string that can be a path."""
+    if not isinstance(value, str) or not value.strip():
+        raise ConfigError("output.dir", f"must be a non-empty string, got {show(value)}")
+    _path_text(value, "output.dir")
+    return value

@@ -17,3 +17,13 @@ class ConfigError(InputError):
 
     def __str__(self) -> str:
         return " ".join(f"{self.field}: {self.message}".split())
+
+
+class RunFailure(Exception):
+    """A run that cannot go on (not bad input, not a bug): the command line exits with code 1 and
+    prints this one line; the last good checkpoint stays on disk."""
+
+
+class StorageError(RunFailure):
+    """A file of a run directory could not be written (disk full, directory unwritable); whatever
+    was on disk before stays intact."""

@@ -14,11 +14,16 @@ A written chain's terms, in the YAML form this module reads (see :mod:`models.wr
 
 Every refusal is one line ``model.<field>: <what is wrong>``; terms that change a conserved
 charge, hold an odd number of fermion operators, use unknown operators or couplings, or never fit
-on the chain are refused here, before any solving.
+on the chain are refused here, before any solving. So are sizes whose check alone would take
+minutes or gigabytes: more than :data:`SITES_LIMIT` sites, a charge-sector check beyond
+:data:`CHARGE_CHECK_BUDGET` (it grows as sites^(k+1) for k charges), a written chain of more than
+:data:`PLACEMENT_LIMIT` placed terms, and texts longer than :data:`TEXT_LIMIT` where a short
+product or coefficient is expected.
 """
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Mapping
 from typing import Any
@@ -32,12 +37,16 @@ from models.written import WrittenTerm, WrittenTermError
 from mps.blocks.charges import reachable_totals
 from mps.chain.lattice import LocalSpace
 from mps.pipeline.errors import ConfigError
-from mps.pipeline.fields import boolean, fmt, integer, kind, real, section, show
+from mps.pipeline.fields import boolean, fmt, integer, is_int, kind, real, section, show
 from mps.pipeline.schema import MODEL_KEYS, ModelConfig
 
 TERM_KEYS = ("product", "coef", "add_conjugate")
 PATTERN_KEYS = ("value", "stagger", "dimer", "per_site", "random", "seed")
 _COUPLING_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+SITES_LIMIT = 100_000             # far beyond any matrix-product-state run on one machine
+CHARGE_CHECK_BUDGET = 3 * 10**10  # grid cells the reachability check may visit (about 2 s)
+PLACEMENT_LIMIT = 300_000         # placed terms of a written chain built at check time (about 3 s)
+TEXT_LIMIT = 1000                 # characters of a product or coefficient text
 
 
 def read_model(value: Any) -> ModelConfig:
@@ -51,7 +60,7 @@ def read_model(value: Any) -> ModelConfig:
     for key in ("family", "sites"):
         if key not in sec:
             raise ConfigError(f"model.{key}", "is required")
-    sites = integer(sec["sites"], "model.sites", 2)
+    sites = integer(sec["sites"], "model.sites", 2, SITES_LIMIT)
     if fam.free_couplings:
         options = _written_options(sec)
         couplings = _named_couplings(sec.get("couplings"))
@@ -64,6 +73,7 @@ def read_model(value: Any) -> ModelConfig:
             for key, default in fam.couplings.items()
         }
     space = fam.space(options)
+    _check_reach_cost(space, sites)   # before any placing: both take long on too long a chain
     if fam.free_couplings:
         _check_written(fam, sites, couplings, options)
     charge = _charge(sec.get("charge"), fam, space, sites, options)
@@ -108,16 +118,40 @@ def _charge(value: Any, fam: ModelFamily, space: LocalSpace, sites: int, options
         where = f"model.charge.{name}"
         q = real(given[name], where) if name in given else float(default[name])
         k = q / unit
+        if not math.isfinite(k):   # 1e308 in units of 1/2
+            raise ConfigError(where, f"must be a charge that {sites} sites can hold, got {show(given[name])}")
         if abs(k - round(k)) > 1e-9 * max(1.0, abs(k)):
             need = "a whole number" if unit == 1 else f"a multiple of {fmt(unit)}"
             raise ConfigError(where, f"must be {need}, got {show(given[name])}")
         target.append(int(round(k)))
     reach = reachable_totals(np.asarray(space.charges), sites)
-    if not (reach == np.array(target)).all(axis=1).any():
+    bounds = zip(target, reach.min(axis=0).tolist(), reach.max(axis=0).tolist())
+    inside = all(lo <= t <= hi for t, lo, hi in bounds)   # (outside, np.array(target) may overflow int64)
+    if not inside or not (reach == np.array(target)).all(axis=1).any():
         _unreachable(space.charge_names, space.charge_units, reach, target, sites)
     return {
         name: float(k * unit) for name, unit, k in zip(space.charge_names, space.charge_units, target)
     }
+
+
+def _reach_cost(charges: np.ndarray, sites: int) -> int:
+    """Grid cells :func:`reachable_totals` visits for ``sites`` sites (an upper bound, exact integers)."""
+    span = charges.max(axis=0) - charges.min(axis=0)
+    return len(charges) * sites * math.prod(sites * int(s) + 1 for s in span)
+
+
+def _check_reach_cost(space: LocalSpace, sites: int) -> None:
+    """Refuse a chain too long for the charge-sector check of its local space (the bound is steep
+    for two charges: about a thousand Hubbard sites), naming the largest length that can be checked."""
+    charges = np.asarray(space.charges).reshape(space.dim, -1)
+    if _reach_cost(charges, sites) <= CHARGE_CHECK_BUDGET:
+        return
+    lo, hi = 2, sites
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        lo, hi = (mid, hi) if _reach_cost(charges, mid) <= CHARGE_CHECK_BUDGET else (lo, mid)
+    raise ConfigError("model.sites", f"must be at most {lo} for this local space (the check that the charge "
+                                     f"sector exists grows as sites^{charges.shape[1] + 1}), got {sites}")
 
 
 def _unreachable(
@@ -145,7 +179,7 @@ def _unreachable(
 # ----------------------------------------------------------------------------- written chains
 def _written_options(sec: Mapping[str, Any]) -> dict[str, Any]:
     basis = sec.get("basis")
-    if basis not in CATALOGUE:
+    if not isinstance(basis, str) or basis not in CATALOGUE:
         raise ConfigError("model.basis", f"must be one of {', '.join(basis_names())}, got {show(basis)}")
     if CATALOGUE[basis].needs_nmax:
         if "nmax" not in sec:
@@ -158,8 +192,8 @@ def _written_options(sec: Mapping[str, Any]) -> dict[str, Any]:
     charges = make_basis(basis, nmax).charge_names
     conserve = sec.get("keep_charges")
     if conserve is not None:
-        if (not isinstance(conserve, list) or not conserve or len(set(map(str, conserve))) != len(conserve)
-                or any(c not in charges for c in conserve)):
+        if (not isinstance(conserve, list) or not conserve or not all(isinstance(c, str) for c in conserve)
+                or len(set(conserve)) != len(conserve) or any(c not in charges for c in conserve)):
             raise ConfigError("model.keep_charges", f"must be a non-empty list of distinct charges among "
                                                 f"{', '.join(charges)}, got {show(conserve)}")
         conserve = tuple(conserve)
@@ -174,10 +208,13 @@ def _written_term(raw: Any, where: str) -> WrittenTerm:
     sec = section(raw, where, TERM_KEYS, required=True)
     if "product" not in sec:
         raise ConfigError(f"{where}.product", "is required, e.g. \"S^+(j) S^-(j+1)\"")
+    text = sec["product"]
     try:
-        product = parse_product(sec["product"])
-    except TermError as exc:
-        raise ConfigError(f"{where}.product", f"{exc}, got {show(sec['product'])}") from None
+        if isinstance(text, str) and len(text) > TEXT_LIMIT:
+            raise TermError(f"must be a product of at most {TEXT_LIMIT} characters")
+        product = parse_product(text)
+    except ValueError as exc:   # TermError, or int() of a site offset with thousands of digits
+        raise ConfigError(f"{where}.product", f"{exc}, got {show(text)}") from None
     if "coef" not in sec:
         raise ConfigError(f"{where}.coef", "is required (a number, a coupling name, or a pattern)")
     coef = _pattern(sec["coef"], f"{where}.coef")
@@ -185,6 +222,10 @@ def _written_term(raw: Any, where: str) -> WrittenTerm:
 
 
 def _amount(raw: Any, where: str) -> Amount:
+    if (is_int(raw) and raw.bit_length() > 1000) or (isinstance(raw, str) and len(raw) > TEXT_LIMIT):
+        # parse_amount would overflow float(), or spend minutes matching a megabyte of digits
+        raise ConfigError(where, "must be a finite number or a coupling name such as J, -J or 0.5*J, "
+                                 f"got {show(raw)}")
     try:
         return parse_amount(raw)
     except TermError as exc:
@@ -231,11 +272,21 @@ def _named_couplings(raw: Any) -> dict[str, float]:
 
 
 def _check_written(fam: ModelFamily, sites: int, couplings: dict[str, float], options: dict) -> None:
-    """Place every term once (refusing what cannot be placed) and refuse unused couplings."""
+    """Place every term once (refusing what cannot be placed, and coefficients that overflow to
+    infinity) and refuse unused couplings."""
+    placed = sites * sum(1 + t.add_conjugate for t in options["terms"])
+    if placed > PLACEMENT_LIMIT:
+        raise ConfigError("model.terms", f"place {placed} terms on {sites} sites; at most {PLACEMENT_LIMIT} "
+                                         "can be checked (fewer terms or sites)")
     try:
-        fam.terms(sites, couplings, options)
+        terms = fam.terms(sites, couplings, options)
     except WrittenTermError as exc:
         raise ConfigError(f"model.terms[{exc.index}]", f"{exc.product}: {exc.message}") from None
+    for term in terms:
+        if not math.isfinite(term.coef):
+            field, _, product = term.label.partition(" ")
+            raise ConfigError(field, f"{product[1:-1]}: a coefficient overflows to {show(term.coef)} "
+                                     "(its factors are finite, their product is not)")
     used = set().union(*(t.coef.names() for t in options["terms"]))
     for name in couplings:
         if name not in used:

@@ -12,10 +12,7 @@ from __future__ import annotations
 
 import hashlib
 import json
-import math
-import signal
 import sys
-import threading
 import time
 from collections.abc import Callable
 from dataclasses import replace
@@ -29,22 +26,34 @@ from mps.chain.mpo import Mpo, OperatorError, build_mpo
 from mps.chain.state import ChainState, product_state, random_state
 from mps.pipeline.checkpoint import CheckpointError, load_checkpoint, save_checkpoint
 from mps.pipeline.config import config_hash, load_config
-from mps.pipeline.errors import InputError
+from mps.pipeline.errors import InputError, RunFailure
+from mps.pipeline.progress import ProgressLine
 from mps.pipeline.rundir import (
     CHECKPOINT,
     CONFIG,
     SUMMARY,
     SWEEPS,
-    RunLock,
+    storage_error,
     write_json,
     write_table,
     write_text,
 )
+from mps.pipeline.runlock import RunLock
 from mps.pipeline.schema import RunConfig, dump_config
+from mps.pipeline.signals import EXIT_STOPPED, StopSignals
 from mps.pipeline.tables import entanglement_tables, write_tables
-from mps.solver.sweep import Progress, SectorSweeper, Stage, SweepSettings, SweepStopped, energy_and_variance
+from mps.solver.sweep import (
+    NumericalError,
+    Progress,
+    SectorSweeper,
+    Stage,
+    SweepSettings,
+    SweepStopped,
+    energy_and_variance,
+)
 
-SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds"]
+SWEEP_COLUMNS = ["sweep", "stage", "bond", "energy", "delta_energy", "truncation", "max_entropy", "seconds",
+                 "warning"]
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -75,41 +84,6 @@ def sweep_settings(cfg: RunConfig) -> SweepSettings:
                          lanczos_tol=sol.lanczos_tol, lanczos_restarts=sol.lanczos_restarts, update=sol.update)
 
 
-class ProgressLine:
-    """One status line on stderr, redrawn in place on a terminal, one line per sweep otherwise."""
-
-    def __init__(self, settings: SweepSettings, stream=None):
-        self.stream = stream or sys.stderr
-        self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
-        self.total = sum(s.sweeps for s in settings.stages)
-        self.start = time.perf_counter()
-        self.sweep_times: list[float] = []
-        self.last = ""
-
-    def bond(self, step: int, steps: int, sweep: int) -> None:
-        if self.tty:
-            self._draw(f"sweep {sweep}: bond {step}/{steps}{self.last}", final=False)
-
-    def sweep(self, rec, done: int) -> None:
-        self.sweep_times.append(rec.seconds)
-        left = max(self.total - done, 0) * float(np.mean(self.sweep_times[-3:]))
-        delta = "" if math.isnan(rec.delta_energy) else f" dE {rec.delta_energy:+.2e}"
-        self.last = (f" | E {rec.energy:.10f}{delta} trunc {rec.truncation:.1e} D {rec.max_bond}"
-                     f" | {time.perf_counter() - self.start:.1f} s, <= {left:.0f} s left")
-        self._draw(f"sweep {rec.sweep} stage {rec.stage + 1} bond {rec.bond}{self.last}", final=True)
-
-    def _draw(self, text: str, final: bool) -> None:
-        if self.tty:
-            self.stream.write("\r\x1b[2K" + text + ("\n" if final else ""))
-        elif final:
-            self.stream.write(text + "\n")
-        self.stream.flush()
-
-    def say(self, text: str) -> None:
-        self.stream.write(text + "\n")
-        self.stream.flush()
-
-
 def _rng_from(state: dict | None, seed: int) -> np.random.Generator:
     rng = np.random.default_rng(seed)
     if state is not None:
@@ -118,71 +92,79 @@ def _rng_from(state: dict | None, seed: int) -> np.random.Generator:
 
 
 def _history_rows(progress: Progress) -> list[list]:
-    return [[r.sweep, r.stage, r.bond, r.energy, r.delta_energy, r.truncation, r.max_entropy, r.seconds]
-            for r in progress.history]
+    return [[r.sweep, r.stage, r.bond, r.energy, r.delta_energy, r.truncation, r.max_entropy, r.seconds,
+             r.warning] for r in progress.history]
 
 
 # ----------------------------------------------------------------------------- the search
-class StopRequest:
-    """First Ctrl-C: finish the current bond, checkpoint and stop. Second Ctrl-C: stop at once
-    (the checkpoint of the last finished sweep or bond stays on disk)."""
-
-    def __init__(self, show: ProgressLine):
-        self.requested = False
-        self.show = show
-        self.previous = None
-
-    def __enter__(self) -> "StopRequest":
-        if threading.current_thread() is threading.main_thread():
-            self.previous = signal.signal(signal.SIGINT, self._handle)
-        return self
-
-    def _handle(self, signum, frame) -> None:
-        if self.requested:
-            raise KeyboardInterrupt
-        self.requested = True
-        self.show.say("\nstopping after the current bond to save a checkpoint (Ctrl-C again to quit now)")
-
-    def __call__(self) -> bool:
-        return self.requested
-
-    def __exit__(self, *exc) -> None:
-        if self.previous is not None:
-            signal.signal(signal.SIGINT, self.previous)
-
-
 def _search(directory: Path, cfg: RunConfig, search: SectorSweeper, rng: np.random.Generator,
-            show: ProgressLine, stop_also: Callable[[], bool] | None = None) -> int:
-    """Sweep to the end, checkpointing after each sweep; returns the exit code. ``stop_also`` is a
-    second stop request (a scan's stop file) honoured like the first Ctrl-C."""
+            show: ProgressLine, should_stop: Callable[[], bool]) -> int:
+    """Sweep to the end, checkpointing after each sweep and, inside a sweep, at the first bond
+    step after ``output.checkpoint_seconds``; returns 0 or EXIT_STOPPED. A non-finite
+    number in the search stops it with one line (RunFailure); the last checkpoint stays."""
     mhash, shash = config_hash(cfg.model), solver_hash(cfg)
     sweep_no = search.progress.sweep + 1
+    path = directory / CHECKPOINT
+    last = [time.monotonic()]
 
     def on_bond(step, steps):
         show.bond(step, steps, sweep_no)
+        if step < steps and time.monotonic() - last[0] >= cfg.output.checkpoint_seconds:
+            checkpoint()   # inside a long sweep: the progress points at the next bond step
 
     def checkpoint():
-        save_checkpoint(directory / CHECKPOINT, search.state, search.progress,
-                        rng.bit_generator.state, mhash, shash)
+        save_checkpoint(path, search.state, search.progress, rng.bit_generator.state, mhash, shash)
+        last[0] = time.monotonic()
 
-    with StopRequest(show) as stop:
-        should_stop = stop if stop_also is None else (lambda: stop() or stop_also())
-        try:
-            for rec in search.run(on_bond=on_bond, should_stop=should_stop):
-                checkpoint()
-                write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
-                show.sweep(rec, len(search.progress.history))
-                sweep_no = rec.sweep + 1
-        except SweepStopped:
+    try:
+        for rec in search.run(on_bond=on_bond, should_stop=should_stop):
             checkpoint()
-            show.say(f"interrupted; saved a checkpoint after bond step {search.progress.step} of sweep "
-                     f"{search.progress.sweep + 1} in {directory / CHECKPOINT}. "
-                     f"Continue with: chargewise resume {directory}")
-            return 130
+            write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
+            show.sweep(rec, len(search.progress.history))
+            if rec.warning:
+                show.say(f"warning: {rec.warning}")
+            sweep_no = rec.sweep + 1
+    except SweepStopped:
+        checkpoint()
+        show.say(f"stopped; saved a checkpoint after bond step {search.progress.step} of sweep "
+                 f"{search.progress.sweep + 1} in {path}. Continue with: chargewise resume {directory}")
+        return EXIT_STOPPED
+    except KeyboardInterrupt:
+        show.say(f"\nstopped at once; the last checkpoint in {path} is kept. "
+                 f"Continue with: chargewise resume {directory}")
+        return EXIT_STOPPED
+    except NumericalError as exc:
+        kept = f"the checkpoint of sweep {search.progress.sweep} in {path} is kept" if path.is_file() \
+            else "no checkpoint was written yet"
+        raise RunFailure(f"{exc}; {kept}") from None
+    # a run killed between its last checkpoint and this table resumes with no sweep left to do
+    write_table(directory / SWEEPS, SWEEP_COLUMNS, _history_rows(search.progress))
+    return 0
+
+
+def _search_and_finish(directory: Path, cfg: RunConfig, mpo: Mpo, search: SectorSweeper,
+                       rng: np.random.Generator, show: ProgressLine, stop_also: Callable[[], bool] | None,
+                       earlier_seconds: float = 0.0, note: dict | None = None) -> int:
+    """The search, then tables, comparison and plots. Ctrl-C or SIGTERM during the search
+    checkpoints at the next bond; during the results (which ``resume`` writes again) it stops at
+    once. ``stop_also`` is a further stop request (a scan's stop file)."""
+    notice = "stopping after the current bond to save a checkpoint (send it again to quit now)"
+    with StopSignals(show.say, notice) as signals:
+        should_stop = signals if stop_also is None else (lambda: signals() or stop_also())
+        t0 = time.perf_counter()
+        code = _search(directory, cfg, search, rng, show, should_stop)
+        if code:
+            return code
+        signals.at_once = True
+        again = f"the search is saved in {directory / CHECKPOINT}; 'chargewise resume {directory}' writes the results"
+        if should_stop():
+            show.say(f"stopped before writing the results; {again}")
+            return EXIT_STOPPED
+        try:
+            _finish(directory, cfg, mpo, search, time.perf_counter() - t0 + earlier_seconds, show, note)
         except KeyboardInterrupt:
-            show.say(f"\ninterrupted; the last checkpoint in {directory / CHECKPOINT} is kept. "
-                     f"Continue with: chargewise resume {directory}")
-            return 130
+            show.say(f"\nstopped while writing the results; {again}")
+            return EXIT_STOPPED
     return 0
 
 
@@ -283,8 +265,10 @@ def run_config(cfg: RunConfig, stream=None, stop: Callable[[], bool] | None = No
     if (directory / CHECKPOINT).exists():
         raise InputError(f"{directory}: already holds a run; continue it with "
                          f"'chargewise resume {directory}' or choose another output.dir / --out")
-    directory.mkdir(parents=True, exist_ok=True)
-    with RunLock(directory):
+    _make(directory)
+    settings = sweep_settings(cfg)
+    show = ProgressLine(settings, stream)
+    with RunLock(directory, show.say):
         write_text(directory / CONFIG, dump_config(cfg))
         rng = np.random.default_rng(cfg.solver.seed)
         target = cfg.model.integer_charge()
@@ -295,17 +279,10 @@ def run_config(cfg: RunConfig, stream=None, stop: Callable[[], bool] | None = No
             state = product_state(mpo.phys, cfg.model.sites, target)
         else:
             state = random_state(mpo.phys, cfg.model.sites, target, min(first, 16), rng)
-        settings = sweep_settings(cfg)
         search = SectorSweeper(mpo, state, settings, rng)
-        show = ProgressLine(settings, stream)
         show.say(f"{cfg.name}: {cfg.model.family}, {cfg.model.sites} sites, "
                  f"charge {cfg.model.charge}, operator bond {max(mpo.bond_dims)}")
-        t0 = time.perf_counter()
-        code = _search(directory, cfg, search, rng, show, stop)
-        if code:
-            return code
-        _finish(directory, cfg, mpo, search, time.perf_counter() - t0, show, note)
-    return 0
+        return _search_and_finish(directory, cfg, mpo, search, rng, show, stop, note=note)
 
 
 def _run_exact(directory: Path, cfg: RunConfig, fresh: bool = True, stream=None) -> int:
@@ -314,13 +291,20 @@ def _run_exact(directory: Path, cfg: RunConfig, fresh: bool = True, stream=None)
 
     if fresh and ((directory / CHECKPOINT).exists() or (directory / SUMMARY).exists()):
         raise InputError(f"{directory}: already holds a run; choose another output.dir / --out")
-    directory.mkdir(parents=True, exist_ok=True)
+    _make(directory)
     show = ProgressLine(sweep_settings(cfg), stream)
-    with RunLock(directory):
+    with RunLock(directory, show.say):
         write_text(directory / CONFIG, dump_config(cfg))
         report = run_exact(directory, cfg, show.say)
         _report_line(directory, cfg, report, show)
     return 0
+
+
+def _make(directory: Path) -> None:
+    try:
+        directory.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise storage_error(directory, exc) from None
 
 
 def _exact_config(directory: Path) -> RunConfig | None:
@@ -338,7 +322,12 @@ def resume(directory: str, stream=None, stop: Callable[[], bool] | None = None) 
         raise InputError(f"{directory}: an exact run (solver.method: exact) has nothing to resume; run it again")
     cfg = load_config(directory / CONFIG)
     cfg = replace(cfg, output=replace(cfg.output, dir=str(directory)))
-    with RunLock(directory):
+    if not (directory / CHECKPOINT).exists():   # stopped before its first checkpoint: start again
+        ProgressLine(sweep_settings(cfg), stream).say(
+            f"{directory}: no checkpoint yet, starting the run from the beginning")
+        return run_config(cfg, stream, stop)
+    show = ProgressLine(sweep_settings(cfg), stream)
+    with RunLock(directory, show.say):
         state, progress, rng_state, meta = load_checkpoint(directory / CHECKPOINT)
         if meta["model_hash"] != config_hash(cfg.model):
             raise CheckpointError(f"{directory}: the model in {CONFIG} differs from the one the checkpoint "
@@ -349,16 +338,10 @@ def resume(directory: str, stream=None, stop: Callable[[], bool] | None = None) 
             progress.converged = False
         rng = _rng_from(rng_state, cfg.solver.seed)
         search = SectorSweeper(mpo, state, settings, rng, progress)
-        show = ProgressLine(settings, stream)
         where = f", bond step {progress.step}" if progress.step else ""
         show.say(f"{cfg.name}: resuming after sweep {progress.sweep}{where} (stage {progress.stage + 1})")
-        t0 = time.perf_counter()
-        code = _search(directory, cfg, search, rng, show, stop)
-        if code:
-            return code
         previous = sum(r.seconds for r in progress.history)
-        _finish(directory, cfg, mpo, search, time.perf_counter() - t0 + previous, show)
-    return 0
+        return _search_and_finish(directory, cfg, mpo, search, rng, show, stop, previous)
 
 
 def load_run(directory: str | Path):

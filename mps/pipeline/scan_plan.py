@@ -8,21 +8,30 @@ refuses) stops the scan with one line naming the key. Each point gets a readable
 built from its values (``Delta=0.5,sites=32``), unique within the scan, and its own seed
 (``solver.seed`` + point index unless ``solver.seed`` is itself scanned), so disorder drawn from the
 seed is reproducible per point.
+
+A scan is bounded before it is expanded: at most :data:`MAX_POINTS` points, and at most
+:data:`MAX_VALUES` values in all the points' configs together (points times the size of the base
+config and of its largest scanned values), so that a hostile grid cannot make ``chargewise check``
+copy gigabytes.
 """
 
 from __future__ import annotations
 
 import copy
 import itertools
+import math
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
 from mps.pipeline.errors import ConfigError
-from mps.pipeline.fields import show
+from mps.pipeline.fields import is_int, key_text, section, show
+from mps.pipeline.schema import OUTPUT_KEYS
 
 SCAN_KEYS = ("grid", "paired", "warm_start")
+MAX_POINTS = 10_000
+MAX_VALUES = 2_000_000
 
 
 @dataclass(frozen=True)
@@ -41,7 +50,7 @@ def scan_axes(scan: Any) -> list[dict[str, list]]:
     """The axes of the product: one per ``grid`` key, one for all ``paired`` keys together."""
     if not isinstance(scan, Mapping):
         raise ConfigError("scan", f"must be a mapping with keys {', '.join(SCAN_KEYS)}, got {show(scan)}")
-    unknown = sorted(set(scan) - set(SCAN_KEYS))
+    unknown = sorted(map(key_text, set(scan) - set(SCAN_KEYS)))   # keys may be numbers or null
     if unknown:
         raise ConfigError(f"scan.{unknown[0]}", f"is not a scan key; valid: {', '.join(SCAN_KEYS)}")
     axes: list[dict[str, list]] = []
@@ -69,6 +78,9 @@ def scan_axes(scan: Any) -> list[dict[str, list]]:
             axes.append({key: list(values) for key, values in block.items()})
     if not axes:
         raise ConfigError("scan", "needs at least one axis under grid or paired")
+    count = math.prod(len(next(iter(axis.values()))) for axis in axes)
+    if count > MAX_POINTS:
+        raise ConfigError("scan", f"has {count} points, more than {MAX_POINTS}; split it into smaller scans")
     return axes
 
 
@@ -77,9 +89,20 @@ def scan_points(data: Mapping[str, Any]) -> list[ScanPoint]:
 
     The returned configs are plain mappings; validate each with ``parse_config`` before running.
     """
+    from mps.pipeline.config import check_dir, check_name
+
     axes = scan_axes(data.get("scan"))
-    base = {k: copy.deepcopy(v) for k, v in data.items() if k != "scan"}
-    out_dir = str((base.get("output") or {}).get("dir") or f"runs/{base.get('name', 'scan')}")
+    base = {k: v for k, v in data.items() if k != "scan"}
+    count = math.prod(len(next(iter(axis.values()))) for axis in axes)
+    size = _size(base, MAX_VALUES // count + 1) + sum(
+        max(_size(v, MAX_VALUES) for v in values) for axis in axes for values in axis.values())
+    if count * size > MAX_VALUES:
+        raise ConfigError("scan", f"{count} points of a config of {size} values make more than {MAX_VALUES} "
+                                  "values to check; use fewer points")
+    base = copy.deepcopy(base)
+    scan_name = check_name(base["name"]) if "name" in base else "scan"
+    output = section(base.get("output"), "output", OUTPUT_KEYS)
+    out_dir = check_dir(output["dir"]) if "dir" in output else f"runs/{scan_name}"
     seed_scanned = any("solver.seed" in axis for axis in axes)
     points, names = [], set()
     for index, combo in enumerate(itertools.product(*(range(len(next(iter(a.values())))) for a in axes))):
@@ -88,14 +111,16 @@ def scan_points(data: Mapping[str, Any]) -> list[ScanPoint]:
         for key, value in values.items():
             _assign(cfg, key, copy.deepcopy(value))
         if not seed_scanned:
-            solver = cfg.setdefault("solver", {}) or {}
-            cfg["solver"] = solver
-            solver["seed"] = int(solver.get("seed", 1)) + index
+            if cfg.get("solver") is None:
+                cfg["solver"] = {}
+            solver = cfg["solver"]
+            if isinstance(solver, dict) and is_int(solver.get("seed", 1)):   # else parse_config refuses it
+                solver["seed"] = solver.get("seed", 1) + index
         name = point_name(values, index, names)
         names.add(name)
         cfg.setdefault("output", {})
         cfg["output"] = dict(cfg["output"] or {}, dir=f"{out_dir}/{name}")
-        cfg["name"] = f"{base.get('name', 'scan')}-{name}"
+        cfg["name"] = f"{scan_name}-{name}"
         points.append(ScanPoint(index, values, name, cfg, tuple(combo)))
     return points
 
@@ -161,7 +186,8 @@ def point_name(values: Mapping[str, Any], index: int, taken: set[str]) -> str:
     parts = []
     for key, value in values.items():
         short = key.rsplit(".", 1)[-1]
-        text = _plain(value) if isinstance(value, (int, float, str, bool)) else f"#{index}"
+        plain = isinstance(value, (float, str, bool)) or (is_int(value) and value.bit_length() <= 64)
+        text = _plain(value[:120] if isinstance(value, str) else value) if plain else f"#{index}"
         parts.append(f"{short}={text}")
     name = re.sub(r"[^A-Za-z0-9_.=,+-]", "_", ",".join(parts))[:120] or f"point{index}"
     return name if name not in taken else f"{name},{index}"
@@ -173,6 +199,20 @@ def _plain(value) -> str:
     if isinstance(value, float) and value.is_integer():
         return str(int(value))
     return str(value)
+
+
+def _size(node: Any, limit: int) -> int:
+    """Values in a loaded config (containers and scalars), counting shared ones each time; stops
+    counting past ``limit``."""
+    count, todo = 0, [node]
+    while todo and count <= limit:
+        item = todo.pop()
+        count += 1
+        if isinstance(item, Mapping):
+            todo.extend(item.values())
+        elif isinstance(item, list):
+            todo.extend(item)
+    return count
 
 
 def _check_key(key: Any, where: str) -> None:

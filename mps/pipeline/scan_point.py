@@ -24,7 +24,7 @@ from pathlib import Path
 
 from threadpoolctl import threadpool_limits
 
-from mps.pipeline.errors import InputError
+from mps.pipeline.errors import InputError, RunFailure
 from mps.pipeline.rundir import CHECKPOINT, SUMMARY, write_json
 
 LOG = "run.log"
@@ -56,9 +56,10 @@ class PointOutcome:
 
 
 def ignore_interrupts() -> None:
-    """Process-pool initializer: an idle worker ignores Ctrl-C (the scan driver decides); a running
-    point installs its own handler for the duration of the run."""
+    """Process-pool initializer: an idle worker ignores Ctrl-C and SIGTERM (the scan driver
+    decides); a running point installs its own handlers for the duration of the run."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)
 
 
 def run_point(task: PointTask) -> PointOutcome:
@@ -69,7 +70,7 @@ def run_point(task: PointTask) -> PointOutcome:
             code = _run(task)
         status = "done" if code == 0 else "stopped"
         return PointOutcome(task.index, status, seconds=time.perf_counter() - t0)
-    except InputError as exc:
+    except (InputError, RunFailure) as exc:
         error = " ".join(str(exc).split())
     except KeyboardInterrupt:
         return PointOutcome(task.index, "stopped", seconds=time.perf_counter() - t0)

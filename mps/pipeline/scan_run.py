@@ -25,11 +25,13 @@ import yaml
 
 from mps.pipeline.config import config_hash, load_mapping
 from mps.pipeline.errors import ConfigError
-from mps.pipeline.rundir import CONFIG, SUMMARY, RunLock, write_text
+from mps.pipeline.rundir import CONFIG, SUMMARY, write_text
+from mps.pipeline.runlock import RunLock
 from mps.pipeline.scan_exec import open_pool
 from mps.pipeline.scan_plan import scan_axes, scan_points, validate_points, warm_sources, warm_start_enabled
 from mps.pipeline.scan_point import PointTask
 from mps.pipeline.scan_table import TABLE, scan_row, write_scan_table
+from mps.pipeline.signals import EXIT_STOPPED, StopSignals
 
 SCAN_CONFIG = "scan.yaml"
 STOP = ".stop"
@@ -93,7 +95,7 @@ def describe(config_path: str) -> str:
 def scan(config_path: str, workers: int | None = None, scheduler: str | None = None, stream=None) -> int:
     plan = plan_scan(config_path)
     plan.directory.mkdir(parents=True, exist_ok=True)
-    with RunLock(plan.directory):
+    with RunLock(plan.directory, ScanProgress([], stream).say):
         write_text(plan.directory / SCAN_CONFIG, yaml.safe_dump(plan.data, sort_keys=False))
         stop_file = plan.directory / STOP
         stop_file.unlink(missing_ok=True)
@@ -129,42 +131,44 @@ def _previous(record: PointRecord) -> None:
 
 
 def _drive(plan: ScanPlan, sources: dict[int, int], pool, stop_file: Path, show: "ScanProgress") -> int:
+    """Keep the pool busy until every point has ended. The first Ctrl-C or SIGTERM asks every
+    running point to checkpoint at its next bond step (the stop file) and starts no new one; a
+    second one leaves at once (each point keeps its last checkpoint)."""
     records = plan.records
     running: dict = {}
-    try:
-        while True:
-            while len(running) < pool.capacity():
-                record = _next_ready(records, sources)
-                if record is None:
-                    break
-                source = sources.get(record.point.index)
-                warm = str(records[source].directory) if source is not None and \
-                    records[source].status == "done" else None
-                task = PointTask(record.point.index, record.point.name, record.point.config, warm, str(stop_file))
-                running[pool.submit(task)] = record
-                record.status = "running"
-            if not running:
-                break
-            if not _collect(running, plan, show):
-                show.tick()
-                time.sleep(0.2)
-    except KeyboardInterrupt:
-        stop_file.touch()
-        show.say("stopping: every running point checkpoints at its next bond step "
-                 "(Ctrl-C again to quit at once)")
+    notice = "stopping: every running point checkpoints at its next bond step (send it again to quit at once)"
+    with StopSignals(show.say, notice) as stop:
         try:
-            while running:
+            while True:
+                if stop():
+                    stop_file.touch()
+                while not stop() and len(running) < pool.capacity():
+                    record = _next_ready(records, sources)
+                    if record is None:
+                        break
+                    running[pool.submit(_task(record, records, sources, stop_file))] = record
+                    record.status = "running"
+                if not running:
+                    break
                 if not _collect(running, plan, show):
+                    show.tick()
                     time.sleep(0.2)
         except KeyboardInterrupt:
             pool.close(list(running), wait=False)
             for record in running.values():
                 record.status = "stopped"
-            return 130
-        pool.close()
-        return 130
+            return EXIT_STOPPED
     pool.close()
+    if stop():
+        return EXIT_STOPPED
     return 1 if any(r.status == "failed" for r in records) else 0
+
+
+def _task(record: PointRecord, records: list[PointRecord], sources: dict[int, int], stop_file: Path) -> PointTask:
+    """The task of a point, warm-started from its finished neighbour if it has one."""
+    source = sources.get(record.point.index)
+    warm = str(records[source].directory) if source is not None and records[source].status == "done" else None
+    return PointTask(record.point.index, record.point.name, record.point.config, warm, str(stop_file))
 
 
 def _next_ready(records: list[PointRecord], sources: dict[int, int]) -> PointRecord | None:
@@ -246,7 +250,7 @@ class ScanProgress:
         parts = [f"scan {plan.name}: {sum(r.status == 'done' for r in records)} of {len(records)} points done"]
         if failed:
             parts.append(f"{len(failed)} failed (errors in {TABLE})")
-        if code == 130:
+        if code == EXIT_STOPPED:
             parts.append(f"stopped; continue with: chargewise scan {plan.source}")
         elif failed:
             parts.append("the same command again retries them")

@@ -31,6 +31,8 @@ result. Schema (defaults in brackets; unknown keys at any level are refused)::
       correlations: bool, measure charge correlations and the correlation length [true]
     output:
       dir: str [runs/<name>, relative to the working directory]   plots: bool [true]
+      checkpoint_seconds: number >= 0, also checkpoint inside a sweep once this long has passed
+                          since the last checkpoint [600]
 """
 
 from __future__ import annotations
@@ -53,7 +55,8 @@ SOLVER_KEYS = ("method", "stages", "discard", "energy_tol", "seed", "lanczos_vec
 STAGE_KEYS = ("bond", "sweeps", "admix")
 ANALYSIS_KEYS = ("renyi", "cuts", "flux_points", "spectrum_levels", "weight_floor", "resolve", "fit_window",
              "correlations")
-OUTPUT_KEYS = ("dir", "plots")
+OUTPUT_KEYS = ("dir", "plots", "checkpoint_seconds")
+DEFAULT_CHECKPOINT_SECONDS = 600.0
 
 DEFAULT_STAGES = ((32, 2), (128, 6))
 DEFAULT_ADMIX = 1e-5
@@ -179,9 +182,10 @@ class AnalysisConfig:
 class OutputConfig:
     dir: str
     plots: bool
+    checkpoint_seconds: float = DEFAULT_CHECKPOINT_SECONDS
 
     def to_dict(self) -> dict[str, Any]:
-        return {"dir": self.dir, "plots": self.plots}
+        return {"dir": self.dir, "plots": self.plots, "checkpoint_seconds": self.checkpoint_seconds}
 
 
 @dataclass(frozen=True)

@@ -107,6 +107,7 @@ class SweepRecord:
     seconds: float
     max_bond: int
     converged: bool
+    warning: str = ""
 
 
 @dataclass
@@ -125,6 +126,23 @@ class Progress:
     step_truncation: float = 0.0
     step_energy: float = math.nan
     step_seconds: float = 0.0
+
+
+class NumericalError(ArithmeticError):
+    """A non-finite number in the eigensolver or the truncation: the state in memory is not
+    usable any more (the caller keeps its last checkpoint)."""
+
+
+def rise_allowance(energy: float, truncation: float, sites: int, energy_tol: float) -> float:
+    """How much the energy may rise from one sweep to the next before it is worth a warning.
+
+    A truncation that discards weight w moves the energy by about w times the energy scale
+    (common practice: energy errors proportional to the discarded weight), and a sweep truncates
+    2(L - 1) times; we allow 10 w max(L, |E|) on top of ``energy_tol`` and of rounding
+    (1e-12 max(1, |E|)). A larger rise means the search is not doing what it should (a bond too
+    small for the stage, a Krylov space too small, or a bug)."""
+    scale = max(float(sites), abs(energy))
+    return energy_tol + 10.0 * truncation * scale + 1e-12 * max(1.0, abs(energy))
 
 
 class SweepStopped(Exception):
@@ -194,12 +212,16 @@ class SectorSweeper:
                                lanczos_vectors=self.settings.lanczos_vectors, tol=tol,
                                max_restarts=self.settings.lanczos_restarts, rng=self.rng)
         self.flops += op.chain.flops * res.applications
+        if not (math.isfinite(res.value) and np.isfinite(res.vector).all()):
+            raise NumericalError(f"the eigensolver returned a non-finite value ({res.value})")
         return res.value, op.wrap(res.vector)
 
     def _record(self, bond: int, charges, values) -> tuple[np.ndarray, ...]:
         """Normalise a bond's kept singular values (one array per sector of ``charges``), store
         the non-empty sectors as the bond's Schmidt values and return the normalised arrays."""
         norm = math.sqrt(sum(float(np.sum(v**2)) for v in values))
+        if not (math.isfinite(norm) and norm > 0):
+            raise NumericalError(f"the truncation at bond {bond} gave Schmidt values of norm {norm}")
         values = tuple(v / norm for v in values)
         self.state.spectra[bond] = BondSpectrum(tuple(q for q, v in zip(charges, values) if v.size),
                                                 tuple(v for v in values if v.size))
@@ -253,7 +275,8 @@ class SectorSweeper:
 
     def _sweep(self, stage: Stage, on_bond, should_stop) -> tuple[float, float, float]:
         """One sweep (left to right and back), starting at bond step ``progress.step``; returns the
-        last energy, the largest discarded weight and the seconds spent."""
+        last energy, the largest discarded weight and the seconds spent. ``progress`` points at the
+        next bond step whenever ``on_bond`` is called, so a checkpoint taken there resumes exactly."""
         n = self.state.sites
         p = self.progress
         tol = self.settings.residual_tol(p.stage)
@@ -262,16 +285,20 @@ class SectorSweeper:
         energy, worst = p.step_energy, p.step_truncation
         t0 = time.perf_counter() - p.step_seconds
         for step in range(p.step, steps):
-            if self.update == "single-site":
-                energy, discarded = self._site_step(step, stage, tol)
-            else:
-                energy, discarded = self._pair_step(order[step], step < n - 1, stage, tol)
+            try:
+                if self.update == "single-site":
+                    energy, discarded = self._site_step(step, stage, tol)
+                else:
+                    energy, discarded = self._pair_step(order[step], step < n - 1, stage, tol)
+            except NumericalError as exc:
+                raise NumericalError(f"{exc} at bond step {step + 1} of sweep {p.sweep + 1}") from None
             worst = max(worst, discarded)
+            if step + 1 < steps:   # a resumable position: a checkpoint taken now continues exactly
+                p.step, p.step_truncation, p.step_energy = step + 1, worst, energy
+                p.step_seconds = time.perf_counter() - t0
             if on_bond is not None:
                 on_bond(step + 1, steps)
             if should_stop is not None and step + 1 < steps and should_stop():
-                p.step, p.step_truncation, p.step_energy = step + 1, worst, energy
-                p.step_seconds = time.perf_counter() - t0
                 raise SweepStopped(f"stopped after bond step {step + 1} of {steps} in sweep {p.sweep + 1}")
         p.step, p.step_truncation, p.step_energy, p.step_seconds = 0, 0.0, math.nan, 0.0
         return energy, worst, time.perf_counter() - t0
@@ -323,9 +350,12 @@ class SectorSweeper:
             p.in_stage += 1
             p.energy = energy
             spectra = [s for s in self.state.spectra if s is not None]
+            allowed = rise_allowance(energy, worst, self.state.sites, self.settings.energy_tol)
+            warning = (f"the energy rose by {delta:.3e} in sweep {p.sweep}, more than the truncation "
+                       f"allows ({allowed:.1e})") if delta > allowed and stage.admix == 0 else ""
             rec = SweepRecord(p.sweep, p.stage, stage.bond, energy, delta, worst,
                               max(s.entropy() for s in spectra), seconds,
-                              max(self.state.bond_dims), p.converged)
+                              max(self.state.bond_dims), p.converged, warning)
             p.history.append(rec)
             yield rec
 

@@ -14,7 +14,7 @@ import yaml
 
 from mps.pipeline import cli
 from mps.pipeline.config import load_config, parse_config
-from mps.pipeline.errors import ConfigError, InputError
+from mps.pipeline.errors import ConfigError, InputError, RunFailure
 
 REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "configs" / "demo-staggered-chain.yaml"
@@ -162,7 +162,12 @@ def test_runner_module_missing(monkeypatch, capsys):
             2,
             "chargewise: runs/x: not a run directory (no state.h5)",
         ),
-        (KeyboardInterrupt(), 130, "chargewise: interrupted"),
+        (KeyboardInterrupt(), 3, "chargewise: interrupted"),   # stopped, resumable
+        (
+            RunFailure("runs/x/state.h5: cannot write (No space left on device)"),
+            1,
+            "chargewise: runs/x/state.h5: cannot write (No space left on device)",
+        ),
         (
             RuntimeError("sweep diverged\nsecond line"),
             1,

@@ -55,7 +55,7 @@ BAD = {
         edit("solver.stages.0.bond_dim", 4), "solver.stages[0].bond_dim", "allowed: admix, bond, sweeps"
     ),
     "unknown analysis key": (edit("analysis.entropies", 1), "analysis.entropies", "allowed:"),
-    "unknown output key": (edit("output.format", "csv"), "output.format", "allowed: dir, plots"),
+    "unknown output key": (edit("output.format", "csv"), "output.format", "allowed: checkpoint_seconds, dir, plots"),
     "model missing": (edit("model", DELETE), "model", "is required"),
     "model not a mapping": (edit("model", "xxz"), "model", "mapping"),
     "family missing": (edit("model.family", DELETE), "model.family", "required"),

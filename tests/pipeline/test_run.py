@@ -73,7 +73,7 @@ def test_run_writes_the_run_directory_and_matches_exact_diagonalisation(tmp_path
     assert s["energy"] == pytest.approx(exact_energy(), abs=1e-9)
     assert s["converged"] is True
     header = (out / "sweeps.csv").read_text().splitlines()[0]
-    assert header == "sweep,stage,bond,energy,delta_energy,truncation,max_entropy,seconds"
+    assert header == "sweep,stage,bond,energy,delta_energy,truncation,max_entropy,seconds,warning"
     again = cli("run", write_config(tmp_path), "--out", out)
     assert again.returncode == 2 and "resume" in again.stderr and "Traceback" not in again.stderr
 
@@ -90,7 +90,7 @@ def test_interrupted_run_resumes_to_the_same_energy(tmp_path, monkeypatch):
                 raise KeyboardInterrupt
 
     monkeypatch.setattr(SectorSweeper, "run", interrupted)
-    assert runner.run(str(cfg), str(tmp_path / "cut")) == 130
+    assert runner.run(str(cfg), str(tmp_path / "cut")) == 3   # stopped, resumable
     _, progress, _, _ = load_checkpoint(tmp_path / "cut" / "state.h5")
     assert progress.sweep == 3
     monkeypatch.setattr(SectorSweeper, "run", original)
@@ -100,7 +100,9 @@ def test_interrupted_run_resumes_to_the_same_energy(tmp_path, monkeypatch):
     assert b["sweeps"] == a["sweeps"]
 
 
-def test_ctrl_c_keeps_last_checkpoint_and_says_how_to_resume(tmp_path):
+@pytest.mark.parametrize("sig", [signal.SIGINT, signal.SIGTERM])
+def test_ctrl_c_or_sigterm_keeps_last_checkpoint_and_says_how_to_resume(tmp_path, sig):
+    # SIGTERM is what batch schedulers send at the wall-time limit: handled like the first Ctrl-C
     cfg = dict(CONFIG)
     cfg["model"] = dict(CONFIG["model"], sites=24)
     cfg["solver"] = dict(CONFIG["solver"], stages=[{"bond": 16, "sweeps": 2}, {"bond": 48, "sweeps": 30}],
@@ -113,9 +115,9 @@ def test_ctrl_c_keeps_last_checkpoint_and_says_how_to_resume(tmp_path):
     deadline = time.time() + 120
     while time.time() < deadline and not (out / "sweeps.csv").exists():
         time.sleep(0.2)
-    proc.send_signal(signal.SIGINT)
+    proc.send_signal(sig)
     _, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130, err
+    assert proc.returncode == 3, err
     assert "saved a checkpoint after bond step" in err and "chargewise resume" in err
     assert "Traceback" not in err
     state, progress, _, _ = load_checkpoint(out / "state.h5")

@@ -212,8 +212,23 @@ def test_ctrl_c_stops_all_points_after_a_checkpoint(tmp_path):
     assert _wait_for(lambda: sum((out / n / "state.h5").exists() for n in ("Delta=0.2", "Delta=0.4")) == 2, proc)
     os.killpg(proc.pid, signal.SIGINT)          # what a terminal sends to the whole foreground group
     _, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130, err
+    assert proc.returncode == 3, err
     assert "stopping: every running point checkpoints" in err and "continue with: chargewise scan" in err
+    statuses = _statuses(out)
+    assert "stopped" in statuses.values() and "running" not in statuses.values()
+    assert main(["scan", str(config), "--workers", "2"]) == 0
+    assert set(_statuses(out).values()) == {"done"}
+
+
+@pytest.mark.slow
+def test_sigterm_to_the_driver_stops_every_point_resumably(tmp_path):
+    # a batch scheduler may signal the driver alone: the stop file carries the request to the workers
+    config, out, proc = _long_scan(tmp_path, workers=2)
+    assert _wait_for(lambda: sum((out / n / "state.h5").exists() for n in ("Delta=0.2", "Delta=0.4")) == 2, proc)
+    proc.send_signal(signal.SIGTERM)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 3, err
+    assert "SIGTERM: stopping: every running point checkpoints" in err and "Traceback" not in err
     statuses = _statuses(out)
     assert "stopped" in statuses.values() and "running" not in statuses.values()
     assert main(["scan", str(config), "--workers", "2"]) == 0

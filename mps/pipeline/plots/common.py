@@ -11,12 +11,13 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-import yaml
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import MultipleLocator
 
-from mps.pipeline.rundir import read_table
+from mps.pipeline.errors import ConfigError
+from mps.pipeline.rundir import read_table, storage_error
+from mps.pipeline.yaml_input import read_yaml_file
 
 PLOTS = "plots"
 DPI = 150
@@ -71,8 +72,8 @@ def _yaml(path: Path) -> dict | None:
     if not path.is_file():
         return None
     try:
-        data = yaml.safe_load(path.read_text())
-    except (OSError, yaml.YAMLError):
+        data = read_yaml_file(path)
+    except ConfigError:
         return None
     return data if isinstance(data, dict) else None
 
@@ -197,6 +198,8 @@ def save(fig: Figure, path: Path) -> Path:
     try:
         fig.savefig(tmp, dpi=DPI, format="png")
         os.replace(tmp, path)
+    except OSError as exc:
+        raise storage_error(path, exc) from None
     finally:
         tmp.unlink(missing_ok=True)
     return path
