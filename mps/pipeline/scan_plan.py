@@ -78,7 +78,7 @@ def scan_axes(scan: Any) -> list[dict[str, list]]:
             axes.append({key: list(values) for key, values in block.items()})
     if not axes:
         raise ConfigError("scan", "needs at least one axis under grid or paired")
-    count = math.prod(len(next(iter(axis.values()))) for axis in axes)
+    count = _point_count(axes)
     if count > MAX_POINTS:
         raise ConfigError("scan", f"has {count} points, more than {MAX_POINTS}; split it into smaller scans")
     return axes
@@ -93,7 +93,7 @@ def scan_points(data: Mapping[str, Any]) -> list[ScanPoint]:
 
     axes = scan_axes(data.get("scan"))
     base = {k: v for k, v in data.items() if k != "scan"}
-    count = math.prod(len(next(iter(axis.values()))) for axis in axes)
+    count = _point_count(axes)
     size = _size(base, MAX_VALUES // count + 1) + sum(
         max(_size(v, MAX_VALUES) for v in values) for axis in axes for values in axis.values())
     if count * size > MAX_VALUES:
@@ -199,6 +199,11 @@ def _plain(value) -> str:
     if isinstance(value, float) and value.is_integer():
         return str(int(value))
     return str(value)
+
+
+def _point_count(axes: list[dict[str, list]]) -> int:
+    """Points of the product of the axes (every key of an axis has the same number of values)."""
+    return math.prod(len(next(iter(axis.values()))) for axis in axes)
 
 
 def _size(node: Any, limit: int) -> int:

@@ -56,7 +56,7 @@ def read_yaml_file(path: str | os.PathLike[str]) -> Any:
     except OSError as exc:
         raise ConfigError(where, f"cannot be read ({exc.strerror or exc})") from None
     if len(raw) > MAX_BYTES:
-        raise ConfigError(where, f"is larger than {MAX_BYTES // 1024} KiB; a config is a short text file")
+        raise _too_large(where)
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:
@@ -67,7 +67,7 @@ def read_yaml_file(path: str | os.PathLike[str]) -> Any:
 def parse_yaml(text: str, where: str) -> Any:
     """The data of one YAML document in ``text``; refusals are ``ConfigError(where, ...)``."""
     if len(text.encode("utf-8", "surrogatepass")) > MAX_BYTES:
-        raise ConfigError(where, f"is larger than {MAX_BYTES // 1024} KiB; a config is a short text file")
+        raise _too_large(where)
     loader = None
     try:
         loader = _Loader(text, where)   # its reader already refuses control characters
@@ -89,6 +89,10 @@ def parse_yaml(text: str, where: str) -> Any:
     finally:
         if loader is not None:
             loader.dispose()
+
+
+def _too_large(where: str) -> ConfigError:
+    return ConfigError(where, f"is larger than {MAX_BYTES // 1024} KiB; a config is a short text file")
 
 
 class _Loader(yaml.SafeLoader):

@@ -56,6 +56,9 @@ BAD = {
     ),
     "unknown analysis key": (edit("analysis.entropies", 1), "analysis.entropies", "allowed:"),
     "unknown output key": (edit("output.format", "csv"), "output.format", "allowed: checkpoint_seconds, dir, plots"),
+    "negative checkpoint interval": (
+        edit("output.checkpoint_seconds", -1), "output.checkpoint_seconds", "must be a number >= 0"
+    ),
     "model missing": (edit("model", DELETE), "model", "is required"),
     "model not a mapping": (edit("model", "xxz"), "model", "mapping"),
     "family missing": (edit("model.family", DELETE), "model.family", "required"),
