@@ -19,6 +19,7 @@ from typing import NamedTuple
 import numpy as np
 
 from mps.blocks.charges import FusionMap, Leg, fuse
+from mps.blocks.direct import direct_legs, plan_direct, use_direct
 from mps.blocks.kernels import pack_blocks, repack_blocks, small_products, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import plan_places
@@ -218,16 +219,27 @@ class PlannedChain:
     contraction when ``running_first``). The constants are packed once, and between steps the
     result is never laid out as blocks: one compiled pass moves every block from its place among
     one step's products to its place in the next step's packing
-    (:func:`mps.blocks.kernels.repack_blocks`). Used for the effective Hamiltonian, whose Krylov
-    iterations repeat the same chain many times.
+    (:func:`mps.blocks.kernels.repack_blocks`). A middle step whose constant is small and sparse
+    (an MPO tensor, :func:`mps.blocks.direct.use_direct`) is done entry by entry instead, from the
+    previous step's products straight into the next step's packing (:mod:`mps.blocks.direct`).
+    Used for the effective Hamiltonian, whose Krylov iterations repeat the same chain many times.
     """
 
-    def __init__(self, template: BlockTensor, steps):
+    def __init__(self, template: BlockTensor, steps, direct: bool = True):
         legs, charge = template.legs, template.charge
-        self.plans, self.constants, self.first = [], [], []
-        for const, ax_run, ax_const, run_first in steps:
+        self.plans, self.constants, self.first, self.directs = [], [], [], {}
+        pending = {}
+        for k, (const, ax_run, ax_const, run_first) in enumerate(steps):
             ax_run = tuple(int(i) % len(legs) for i in ax_run)
             ax_const = tuple(int(i) % const.ndim for i in ax_const)
+            if (direct and run_first and 0 < k < len(steps) - 1 and self.plans[k - 1] is not None
+                    and use_direct(const, ax_const)):
+                pending[k] = (legs, charge, ax_run, const, ax_const)
+                legs, charge = direct_legs(legs, charge, ax_run, const, ax_const)
+                self.plans.append(None)
+                self.constants.append(None)
+                self.first.append(True)
+                continue
             plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
                     else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
             self.plans.append(plan)
@@ -235,31 +247,56 @@ class PlannedChain:
             self.first.append(run_first)
             legs, charge = plan.out_legs, plan.out_charge
         self.out_legs, self.out_charge = legs, charge
-        self.running = [p.place_a if f else p.place_b for p, f in zip(self.plans, self.first)]
-        self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants])
+        self.running = [None if p is None else (p.place_a if f else p.place_b) for p, f in zip(self.plans, self.first)]
+        for k, (x_legs, x_charge, ax_run, const, ax_const) in pending.items():
+            self.directs[k] = plan_direct_step(x_legs, x_charge, ax_run, const, ax_const,
+                                               self.plans[k - 1].place_o, self.running[k + 1])
+        self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants if c is not None],
+                                    *[d.values.dtype for d in self.directs.values()])
 
         # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
         # every application
-        self._packed_in = [np.empty(p.size, dtype=self.dtype) for p in self.running]
-        self._products = [np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
+        self._packed_in = [None if p is None else np.empty(p.size, dtype=self.dtype) for p in self.running]
+        self._products = [None if p is None else np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
 
     @property
     def flops(self) -> int:
-        return sum(p.flops for p in self.plans)
+        return sum(p.flops for p in self.plans if p is not None) + sum(d.flops for d in self.directs.values())
 
     def __call__(self, data: np.ndarray) -> np.ndarray:
         """Flat data of the final result for the running tensor's flat ``data``."""
         x = self.running[0].pack(np.asarray(data, dtype=self.dtype))   # a real tensor, complex constants
         last = len(self.plans) - 1
         for k, plan in enumerate(self.plans):
+            if plan is None:           # done by the previous step, straight into step k + 1's packing
+                continue
             a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
             products = gemm_groups(plan, a, b, self.dtype, self._products[k])
             if k == last:
                 return plan.place_o.unpack(products)
+            if k + 1 in self.directs:
+                x = self.directs[k + 1](products, self._packed_in[k + 2])
+                continue
             o, n = plan.place_o, self.running[k + 1]
             x = repack_blocks(products, o.shapes, o.rows, o.cols, o.dest, o.ld, n.rows, n.cols, n.dest, n.ld,
                               self._packed_in[k + 1])
         return x
+
+
+plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)
+"""Direct steps (:func:`mps.blocks.direct.plan_direct`), cached by structure, the constant's
+entries and the two placements (which the cached step keeps alive, so their ids stay theirs)."""
+
+
+def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src: Placement, dst: Placement):
+    key = (x_legs, x_charge, ax_run, const.legs, const.charge, ax_const, const.dtype.str, const.data.tobytes(),
+           id(src), id(dst))
+    return plan_direct_cached.lookup(key, x_legs, x_charge, ax_run, const, ax_const, src, dst)
+
+
+def planning_seconds() -> float:
+    """Seconds spent building contraction plans and direct steps in this process."""
+    return plan_contraction.build_seconds + plan_direct_cached.build_seconds
 
 
 def contract(a: BlockTensor, b: BlockTensor, axes_a, axes_b):

@@ -326,7 +326,7 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
 
 
 @njit(cache=True, nogil=True)
-def _weights(shape, rows, cols, ld, out):  # pragma: no cover - compiled
+def weights(shape, rows, cols, ld, out):  # pragma: no cover - compiled
     """out[a]: how far one step along axis a moves in a packed group matrix with ``ld`` columns
     whose rows run over legs ``rows`` and columns over legs ``cols`` (C order)."""
     s = 1
@@ -353,8 +353,8 @@ def repack_blocks(src, shapes, src_rows, src_cols, src_dest, src_ld,
     for b in range(nb):
         if dst_dest[b] < 0:
             continue
-        _weights(shapes[b], dst_rows, dst_cols, dst_ld[b], wd)
-        _weights(shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
+        weights(shapes[b], dst_rows, dst_cols, dst_ld[b], wd)
+        weights(shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
         zero = src_dest[b] < 0
         ps = src_dest[b]
         pd = dst_dest[b]

@@ -38,6 +38,11 @@ class PlanCache:
             self.nbytes -= self.weight(old)
 
     def __call__(self, *key):
+        return self.lookup(key, *key)
+
+    def lookup(self, key, *args):
+        """The plan stored under ``key``, built from ``args`` if missing (for plans whose
+        arguments are not hashable themselves)."""
         plan = self.plans.get(key)
         if plan is not None:
             self.hits += 1
@@ -45,7 +50,7 @@ class PlanCache:
             return plan
         self.misses += 1
         t0 = time.perf_counter()
-        plan = self.build(*key)
+        plan = self.build(*args)
         self.build_seconds += time.perf_counter() - t0
         self.plans[key] = plan
         self.nbytes += self.weight(plan)

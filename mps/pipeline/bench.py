@@ -2,18 +2,19 @@
 
 - ``block_vs_dense``: one two-site effective-Hamiltonian application with charge blocks versus
   the same contraction done densely with numpy (Heisenberg chain, mid-chain bond structure).
-- ``gemm_fraction``: FLOP rate of that block-sparse application (FLOPs counted from the block
-  shapes of the contraction plans) over numpy's matmul rate on 2048 x 2048 matrices measured in the
-  same process (the machine's practical peak).
+- ``gemm_fraction``: FLOP rate of that block-sparse application (FLOPs counted from the group
+  shapes of its contraction plans and the multiply-adds of its direct MPO step) over numpy's
+  matmul rate on 2048 x 2048 matrices measured in the same process (the machine's practical peak).
 - ``seconds_per_sweep`` and ``sweep_exponent``: one full sweep of a Heisenberg chain at each bond
   dimension with a fixed Krylov work per bond (8 applications, no restart, 4 in ``--quick``), so
   only the engine's cost is measured, and the slope of log(seconds) against log(bond) (reported,
   no goal: the overheads that shape it at small bonds are what the other figures watch).
 - ``sweep_flop_fraction``: per bond, the FLOPs of the sweep's planned contractions (two-site
-  tensor and every effective-Hamiltonian application, counted from the group shapes; the
-  environment updates, about one application's worth per bond step, are not counted, so the
-  figure errs low) over (sweep seconds x the matmul rate measured in the same process).
-- ``planning_share``: per bond, seconds spent building contraction plans over sweep seconds.
+  tensor, every effective-Hamiltonian application and every environment update, counted from the
+  group shapes and the multiply-adds of the direct MPO steps; SVDs and Krylov vector work are
+  not counted) over (sweep seconds x the matmul rate measured in the same process).
+- ``planning_share``: per bond, seconds spent building contraction plans and direct MPO steps
+  over sweep seconds.
 - ``peak_rss_mb``: peak resident memory of the process that ran the largest-bond sweep of the
   series (each sweep runs in a fresh process); the full bench adds one bond-1024 sweep of a
   60-site chain with its own peak memory (``large_bond``).
@@ -41,7 +42,7 @@ import numpy as np
 
 from models import get_family
 from mps.blocks.charges import Leg
-from mps.blocks.contract import PlannedChain, contract, plan_contraction
+from mps.blocks.contract import PlannedChain, planning_seconds
 from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import build_mpo
 from mps.chain.state import ChainState, canonicalize
@@ -87,19 +88,6 @@ def dense_application(left, pair, right, theta) -> np.ndarray:
     return np.tensordot(x, right, axes=((1, 4), (2, 1)))
 
 
-def application_flops(left, pair, right, theta) -> int:
-    """FLOPs of one block-sparse application, from the block shapes of its contraction plans."""
-    total = 0
-    x = theta
-    for a, b, ax, bx in ((left, None, (2,), (0,)), (None, pair, (1, 2, 3), (0, 1, 2)),
-                         (None, right, (1, 4), (2, 1))):
-        a = x if a is None else a
-        b = x if b is None else b
-        total += plan_contraction(a.legs, a.charge, ax, b.legs, b.charge, bx).flops
-        x = contract(a, b, ax, bx)
-    return total
-
-
 def best_time(fn, repeats: int) -> float:
     best = math.inf
     for _ in range(repeats):
@@ -127,7 +115,7 @@ def application_figures(bond: int, repeats: int) -> dict:
     t_dense = best_time(lambda: dense_application(*dense), max(1, repeats // 2))
     check = apply_merged(*problem).to_dense()
     err = float(np.max(np.abs(check - dense_application(*dense))) / max(np.max(np.abs(check)), 1e-300))
-    flops = application_flops(*problem)
+    flops = chain.flops
     peak = gemm_rate()
     return {"bond": bond, "block_seconds": t_block, "dense_seconds": t_dense,
             "block_vs_dense": t_dense / t_block, "block_gflops": flops / t_block / 1e9,
@@ -173,12 +161,12 @@ def _sweep_worker(case: SweepCase, queue) -> None:
                              lanczos_vectors=case.krylov, lanczos_tol=1e-30, lanczos_restarts=0,
                              update=case.update)
     search = SectorSweeper(mpo, state, settings, rng)
-    planned = plan_contraction.cache_info().build_seconds
+    planned = planning_seconds()
     t0 = time.perf_counter()
     for _ in search.run():
         pass
     seconds = time.perf_counter() - t0
-    planning = plan_contraction.cache_info().build_seconds - planned
+    planning = planning_seconds() - planned
     peak = gemm_rate()
     queue.put({"bond": case.bond, "sites": case.sites, "family": case.family, "update": case.update,
                "seconds": seconds, "max_bond": max(search.state.bond_dims),

@@ -32,19 +32,35 @@ def right_boundary(mpo_right: Leg, bond_right: Leg) -> BlockTensor:
     return env
 
 
+def grow_left_counted(env: BlockTensor, a: BlockTensor, w: BlockTensor) -> tuple[BlockTensor, int]:
+    """Left environment of site j+1 from that of site j, the site tensor A_j and the MPO tensor
+    W_j, with the FLOPs of its contractions. One planned chain: env -> A -> W (entry by entry)
+    -> A*, so the intermediates move from one product's layout to the next once."""
+    chain = PlannedChain(a, [(env, (0,), (2,), False),          # (bra, w, s, r)
+                             (w, (1, 2), (0, 2), True),         # (bra, r, s', w')
+                             (a.conj(), (0, 2), (0, 1), False)])  # (r_bra, r, w')
+    out = BlockTensor(chain.out_legs, chain.out_charge, chain(a.data))
+    return out.transpose((0, 2, 1)), chain.flops
+
+
+def grow_right_counted(env: BlockTensor, b: BlockTensor, w: BlockTensor) -> tuple[BlockTensor, int]:
+    """Right environment of site j-1 from that of site j, the site tensor B_j and W_j, with the
+    FLOPs of its contractions (one planned chain, as :func:`grow_left_counted`)."""
+    chain = PlannedChain(b, [(env, (2,), (2,), True),           # (l, s, r_bra, w)
+                             (w, (1, 3), (2, 3), True),         # (l, r_bra, w, s')
+                             (b.conj(), (3, 1), (1, 2), False)])  # (l_bra, l, w)
+    out = BlockTensor(chain.out_legs, chain.out_charge, chain(b.data))
+    return out.transpose((0, 2, 1)), chain.flops
+
+
 def grow_left(env: BlockTensor, a: BlockTensor, w: BlockTensor) -> BlockTensor:
     """Left environment of site j+1 from that of site j, the site tensor A_j and the MPO tensor W_j."""
-    x = contract(env, a, (2,), (0,))                 # (bra, w, s, r)
-    x = contract(x, w, (1, 2), (0, 2))               # (bra, r, s', w')
-    x = contract(a.conj(), x, (0, 1), (0, 2))        # (r_bra, r, w')
-    return x.transpose((0, 2, 1))
+    return grow_left_counted(env, a, w)[0]
 
 
 def grow_right(env: BlockTensor, b: BlockTensor, w: BlockTensor) -> BlockTensor:
     """Right environment of site j-1 from that of site j, the site tensor B_j and W_j."""
-    x = contract(b, env, (2,), (2,))                 # (l, s, r_bra, w)
-    x = contract(w, x, (2, 3), (1, 3))               # (w, s', l, r_bra)
-    return contract(b.conj(), x, (1, 2), (1, 3))     # (l_bra, w, l)
+    return grow_right_counted(env, b, w)[0]
 
 
 def merge_pair(w1: BlockTensor, w2: BlockTensor) -> BlockTensor:

@@ -36,7 +36,9 @@ from mps.solver.effective import (
     expansion_left,
     expansion_right,
     grow_left,
+    grow_left_counted,
     grow_right,
+    grow_right_counted,
     left_boundary,
     merge_pair,
     one_site_operator,
@@ -193,6 +195,18 @@ class SectorSweeper:
         for j in range(n - 1, c, -1):
             self.rights[j - 1] = grow_right(self.rights[j], ts[j], ws[j])
 
+    def _grow_left(self, j: int) -> BlockTensor:
+        """Left environment of site j + 1 after site j changed (its FLOPs counted)."""
+        env, flops = grow_left_counted(self.lefts[j], self.state.tensors[j], self.mpo.tensors[j])
+        self.flops += flops
+        return env
+
+    def _grow_right(self, j: int) -> BlockTensor:
+        """Right environment of site j - 1 after site j changed (its FLOPs counted)."""
+        env, flops = grow_right_counted(self.rights[j], self.state.tensors[j], self.mpo.tensors[j])
+        self.flops += flops
+        return env
+
     # ------------------------------------------------------------------ one bond
     def _optimize(self, j: int, stage: Stage, tol: float):
         ts, ws = self.state.tensors, self.mpo.tensors
@@ -230,17 +244,17 @@ class SectorSweeper:
 
     def _pair_step(self, j: int, rightward: bool, stage: Stage, tol: float) -> tuple[float, float]:
         """Two-site update of sites j, j+1; the centre moves to j+1 (rightward) or j."""
-        ts, ws = self.state.tensors, self.mpo.tensors
+        ts = self.state.tensors
         energy, cut, values = self._optimize(j, stage, tol)
         if rightward:
             ts[j] = cut.u
             ts[j + 1] = scale_leg(cut.vh, 0, values)
-            self.lefts[j + 1] = grow_left(self.lefts[j], ts[j], ws[j])
+            self.lefts[j + 1] = self._grow_left(j)
             self.state.center = j + 1
         else:
             ts[j + 1] = cut.vh
             ts[j] = scale_leg(cut.u, 2, values)
-            self.rights[j] = grow_right(self.rights[j + 1], ts[j + 1], ws[j + 1])
+            self.rights[j] = self._grow_right(j + 1)
             self.state.center = j
         return energy, cut.discarded
 
@@ -267,10 +281,10 @@ class SectorSweeper:
         ts[j] = cut.isometry
         if rightward:
             ts[j + 1] = contract(cut.rest, ts[j + 1], (1,), (0,))
-            self.lefts[j + 1] = grow_left(self.lefts[j], ts[j], ws[j])
+            self.lefts[j + 1] = self._grow_left(j)
         else:
             ts[j - 1] = contract(ts[j - 1], cut.rest, (2,), (0,))
-            self.rights[j - 1] = grow_right(self.rights[j], ts[j], ws[j])
+            self.rights[j - 1] = self._grow_right(j)
         self.state.center = j + 1 if rightward else j - 1
         return energy, cut.discarded
 

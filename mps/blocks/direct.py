@@ -1,0 +1,281 @@
+"""Contraction with a small sparse constant (an MPO tensor), entry by entry, straight from one
+product's packed layout into the next product's packing.
+
+In the effective Hamiltonian the middle step contracts the large intermediate X with the MPO. As
+a group GEMM it has a contracted dimension of a few (w d^2 split by charge), and X must be moved
+into that GEMM's packing and the result out into the next one's: three passes over the largest
+array of the application, the last a scattered transpose. The MPO has few non-zero entries, so
+instead every non-zero entry C[k, g] adds C[k, g] X[f, k] to Y[f, g] for all free indices f of X
+at once (a strided AXPY over one block's slab), reading X where the previous group products left
+it and writing Y where the next group product reads it: one pass, no intermediate copy.
+
+A :class:`DirectStep` is the list of those AXPYs ("tasks"), sorted by destination so that the
+first task of each destination slab writes and the others add (no zero fill where every slab
+is reached).
+"""
+
+from __future__ import annotations
+
+from collections import OrderedDict
+from dataclasses import dataclass
+from typing import NamedTuple
+
+import numpy as np
+from numba import njit
+
+from mps.blocks.charges import Leg, mixed_radix
+from mps.blocks.kernels import weights
+from mps.blocks.tensor import BlockTensor, layout
+
+DIRECT_REUSE = 4.0
+"""A constant is applied entry by entry when it has at most this many non-zero entries per
+distinct contracted index (on average): then each entry of X is read a few times at most, and
+one pass beats a GEMM's two repacks. Measured on the development machine (see
+:func:`use_direct`)."""
+
+
+@dataclass(frozen=True)
+class DirectStep:
+    """The AXPYs of one direct contraction. Task t adds ``values[t]`` times the slab of X
+    starting at packed position ``src[t]`` to the slab of Y at ``dst[t]`` (overwrites it when
+    ``first[t]``); both slabs run over X's free legs with extents ``extent[t]`` and strides
+    ``src_step[t]`` / ``dst_step[t]``. ``zero`` asks for the output to be cleared first (some
+    slab is reached by no task)."""
+
+    out_legs: tuple[Leg, ...]
+    out_charge: tuple[int, ...]
+    src: np.ndarray
+    dst: np.ndarray
+    first: np.ndarray
+    values: np.ndarray
+    extent: np.ndarray
+    src_step: np.ndarray
+    dst_step: np.ndarray
+    zero: bool
+    placements: tuple = ()     # the source and destination placements, kept alive for the cache key
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held by the task arrays (the plan cache's weight)."""
+        return sum(a.nbytes for a in (self.src, self.dst, self.first, self.values, self.extent, self.src_step,
+                                      self.dst_step)) + 1024
+
+    @property
+    def flops(self) -> int:
+        """Real multiply-adds times two of one application."""
+        return 2 * int(np.prod(self.extent, axis=1).sum()) if len(self.extent) else 0
+
+    def __call__(self, src: np.ndarray, out: np.ndarray) -> np.ndarray:
+        return direct_apply(src, out, self.src, self.dst, self.first, self.values.astype(out.dtype, copy=False),
+                            self.extent, self.src_step, self.dst_step, self.zero)
+
+
+def direct_legs(x_legs: tuple[Leg, ...], x_charge: tuple[int, ...], axes_x: tuple[int, ...],
+                const: BlockTensor, axes_c: tuple[int, ...]) -> tuple[tuple[Leg, ...], tuple[int, ...]]:
+    """Legs (free legs of X, then free legs of the constant) and charge of the result."""
+    for i, j in zip(axes_x, axes_c):
+        if not x_legs[i].is_dual_of(const.legs[j]):
+            raise ValueError(f"leg {i} of the running tensor does not match leg {j} of the constant")
+    free_x = [i for i in range(len(x_legs)) if i not in axes_x]
+    free_c = [i for i in range(const.ndim) if i not in axes_c]
+    legs = tuple(x_legs[i] for i in free_x) + tuple(const.legs[i] for i in free_c)
+    return legs, tuple(int(a) + int(b) for a, b in zip(x_charge, const.charge))
+
+
+class Entries(NamedTuple):
+    """Non-zero entries of a constant: sector indices (n, ndim), offsets inside the sectors
+    (n, ndim) and values."""
+
+    keys: np.ndarray
+    offsets: np.ndarray
+    values: np.ndarray
+    verdicts: dict      # contracted axes -> use_direct's answer
+
+
+_ENTRIES: OrderedDict = OrderedDict()
+_ENTRIES_KEPT = 256
+
+
+def nonzero_entries(const: BlockTensor) -> Entries:
+    """Every non-zero entry of ``const`` (cached by structure and data: the MPO tensors of a
+    run are the same few constants at every bond step)."""
+    key = (const.legs, const.charge, const.dtype.str, const.data.tobytes())
+    hit = _ENTRIES.get(key)
+    if hit is not None:
+        _ENTRIES.move_to_end(key)
+        return hit
+    lay = const.layout
+    pos = np.flatnonzero(const.data)
+    blk = np.searchsorted(lay.offsets, pos, side="right") - 1
+    rel = pos - lay.offsets[blk]
+    shapes = lay.shape_array[blk]
+    offs = np.empty_like(shapes)
+    for a in range(const.ndim - 1, -1, -1):
+        offs[:, a] = rel % shapes[:, a]
+        rel = rel // shapes[:, a]
+    out = _ENTRIES[key] = Entries(lay.key_array[blk], offs, const.data[pos], {})
+    if len(_ENTRIES) > _ENTRIES_KEPT:
+        _ENTRIES.popitem(last=False)
+    return out
+
+
+def use_direct(const: BlockTensor, axes_c: tuple[int, ...]) -> bool:
+    """Whether to apply ``const`` entry by entry (:data:`DIRECT_REUSE`)."""
+    entries = nonzero_entries(const)
+    verdict = entries.verdicts.get(axes_c)
+    if verdict is None:
+        keys, offs = entries.keys, entries.offsets
+        starts = [np.asarray(const.legs[i].offsets)[:-1] for i in axes_c]
+        dense = np.stack([starts[n][keys[:, i]] + offs[:, i] for n, i in enumerate(axes_c)], axis=1)
+        verdict = entries.verdicts[axes_c] = bool(len(keys)) and len(keys) <= DIRECT_REUSE * len(np.unique(dense, axis=0))
+    return verdict
+
+
+def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place, dst_place) -> DirectStep:
+    """Tasks of X (legs ``x_legs``, held in ``src_place``: a placement of the previous product)
+    contracted over ``axes_x`` with ``const`` over ``axes_c``, written into ``dst_place`` (the
+    next product's packing of the result)."""
+    out_legs, out_charge = direct_legs(x_legs, x_charge, axes_x, const, axes_c)
+    free_x = np.array([i for i in range(len(x_legs)) if i not in axes_x], dtype=np.int64)
+    free_c = np.array([i for i in range(const.ndim) if i not in axes_c], dtype=np.int64)
+    con_x, con_c = np.array(axes_x, dtype=np.int64), np.array(axes_c, dtype=np.int64)
+    keys, offs, values, _ = nonzero_entries(const)
+    lay_x, lay_o = layout(x_legs, x_charge), layout(out_legs, out_charge)
+    con_radix = mixed_radix([const.legs[i].nsec for i in axes_c])
+    out_radix = mixed_radix([leg.nsec for leg in out_legs])
+    order = np.argsort(keys[:, con_c] @ con_radix, kind="stable")
+    tasks = direct_tasks(lay_x.key_array, src_place.shapes, src_place.rows, src_place.cols, src_place.dest,
+                         src_place.ld, free_x, con_x, keys[order], offs[order], free_c, con_c, con_radix,
+                         lay_o.key_array @ out_radix, out_radix, dst_place.shapes, dst_place.rows,
+                         dst_place.cols, dst_place.dest, dst_place.ld)
+    entry, src, dst, first, extent, src_step, dst_step, zero = tasks
+    return DirectStep(out_legs, out_charge, src, dst, first, values[order][entry], extent, src_step, dst_step,
+                      bool(zero), (src_place, dst_place))
+
+
+@njit(cache=True, nogil=True)
+def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x, con_x,
+                 e_keys, e_offs, free_c, con_c, con_radix, o_codes, o_radix,
+                 o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # pragma: no cover - compiled
+    """Every (block of X, non-zero entry) pair that meets on the contracted sectors and lands in a
+    packed block of the result; entries come sorted by the code of their contracted sectors.
+    Returns (entry, src, dst, first, extent, src_step, dst_step, zero) with tasks sorted by dst."""
+    nb, r = x_shapes.shape
+    ne = e_keys.shape[0]
+    nf, nk, ng = len(free_x), len(con_x), len(free_c)
+    e_code = np.empty(ne, np.int64)
+    for e in range(ne):
+        c = 0
+        for k in range(nk):
+            c += e_keys[e, con_c[k]] * con_radix[k]
+        e_code[e] = c
+    cap = 0
+    for b in range(nb):
+        if src_dest[b] < 0:
+            continue
+        c = 0
+        for k in range(nk):
+            c += x_keys[b, con_x[k]] * con_radix[k]
+        cap += np.searchsorted(e_code, c, side="right") - np.searchsorted(e_code, c, side="left")
+    entry = np.empty(cap, np.int64)
+    src = np.empty(cap, np.int64)
+    dst = np.empty(cap, np.int64)
+    extent = np.empty((cap, nf), np.int64)
+    src_step = np.empty((cap, nf), np.int64)
+    dst_step = np.empty((cap, nf), np.int64)
+    ws = np.empty(r, np.int64)
+    wd = np.empty(nf + ng, np.int64)
+    t = 0
+    for b in range(nb):
+        if src_dest[b] < 0:
+            continue
+        c = 0
+        for k in range(nk):
+            c += x_keys[b, con_x[k]] * con_radix[k]
+        lo = np.searchsorted(e_code, c, side="left")
+        hi = np.searchsorted(e_code, c, side="right")
+        if lo == hi:
+            continue
+        weights(x_shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
+        base = 0
+        for i in range(nf):
+            base += x_keys[b, free_x[i]] * o_radix[i]
+        for e in range(lo, hi):
+            code = base
+            for g in range(ng):
+                code += e_keys[e, free_c[g]] * o_radix[nf + g]
+            bo = np.searchsorted(o_codes, code)
+            if bo >= len(o_codes) or o_codes[bo] != code or dst_dest[bo] < 0:
+                continue
+            weights(o_shapes[bo], dst_rows, dst_cols, dst_ld[bo], wd)
+            s = src_dest[b]
+            for k in range(nk):
+                s += e_offs[e, con_c[k]] * ws[con_x[k]]
+            d = dst_dest[bo]
+            for g in range(ng):
+                d += e_offs[e, free_c[g]] * wd[nf + g]
+            entry[t], src[t], dst[t] = e, s, d
+            for i in range(nf):
+                extent[t, i] = x_shapes[b, free_x[i]]
+                src_step[t, i] = ws[free_x[i]]
+                dst_step[t, i] = wd[i]
+            t += 1
+    order = np.argsort(dst[:t], kind="mergesort")
+    first = np.zeros(t, np.bool_)
+    covered = 0
+    for n in range(t):
+        i = order[n]
+        if n == 0 or dst[i] != dst[order[n - 1]]:
+            first[n] = True
+            slab = 1
+            for a in range(nf):
+                slab *= extent[i, a]
+            covered += slab
+    needed = 0
+    for bo in range(len(o_codes)):
+        if dst_dest[bo] >= 0:
+            n = 1
+            for a in range(o_shapes.shape[1]):
+                n *= o_shapes[bo, a]
+            needed += n
+    zero = covered != needed
+    if zero:
+        first[:] = False
+    return (entry[order], src[order], dst[order], first, extent[order], src_step[order], dst_step[order],
+            zero)
+
+
+@njit(cache=True, nogil=True)
+def direct_apply(src, out, s0, d0, first, values, extent, src_step, dst_step, zero):  # pragma: no cover
+    """Run the tasks of a :class:`DirectStep` (see there); returns ``out``."""
+    if zero:
+        out[:] = 0
+    nt, nf = extent.shape
+    idx = np.zeros(nf, np.int64)
+    for t in range(nt):
+        v = values[t]
+        nl, sl, dl = extent[t, nf - 1], src_step[t, nf - 1], dst_step[t, nf - 1]
+        count = 1
+        for a in range(nf - 1):
+            count *= extent[t, a]
+            idx[a] = 0
+        ps, pd = s0[t], d0[t]
+        for _ in range(count):
+            if first[t]:
+                for i in range(nl):
+                    out[pd + i * dl] = v * src[ps + i * sl]
+            else:
+                for i in range(nl):
+                    out[pd + i * dl] += v * src[ps + i * sl]
+            j = nf - 2
+            while j >= 0:
+                idx[j] += 1
+                ps += src_step[t, j]
+                pd += dst_step[t, j]
+                if idx[j] < extent[t, j]:
+                    break
+                ps -= idx[j] * src_step[t, j]
+                pd -= idx[j] * dst_step[t, j]
+                idx[j] = 0
+                j -= 1
+    return out
