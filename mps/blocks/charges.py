@@ -113,8 +113,17 @@ class Leg:
         return h
 
     def dual(self) -> "Leg":
-        """The same sectors with the opposite flow (the leg it contracts with)."""
-        return Leg(self.charges, self.sizes, -self.flow)
+        """The same sectors with the opposite flow (the leg it contracts with). Built once per
+        leg and linked both ways, so legs and their duals stay the same objects (cheap to hash
+        and compare in the plan caches)."""
+        d = self.__dict__.get("_dual")
+        if d is None:
+            d = object.__new__(Leg)
+            for name, value in (("charges", self.charges), ("sizes", self.sizes), ("flow", -self.flow),
+                                ("_dual", self)):
+                object.__setattr__(d, name, value)
+            object.__setattr__(self, "_dual", d)
+        return d
 
     def state_charges(self) -> np.ndarray:
         """(dim, k) charge vector of every dense index."""

@@ -20,10 +20,10 @@ import numpy as np
 
 from mps.blocks.charges import FusionMap, Leg, fuse
 from mps.blocks.direct import direct_legs, plan_direct, use_direct
-from mps.blocks.kernels import pack_blocks, repack_blocks, small_products, unpack_blocks
+from mps.blocks.kernels import pack_blocks, pack_into, repack_blocks, small_products, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import plan_places
-from mps.blocks.tensor import BlockTensor, layout
+from mps.blocks.tensor import BlockTensor, layout, permuted_blocks
 
 SMALL_GEMM = 2048
 """Largest group (multiply-adds) done by the compiled loop: measured crossover with one numpy
@@ -225,7 +225,7 @@ class PlannedChain:
     Used for the effective Hamiltonian, whose Krylov iterations repeat the same chain many times.
     """
 
-    def __init__(self, template: BlockTensor, steps, direct: bool = True):
+    def __init__(self, template: BlockTensor, steps, direct: bool = True, out_perm=None):
         legs, charge = template.legs, template.charge
         self.plans, self.constants, self.first, self.directs = [], [], [], {}
         pending = {}
@@ -246,6 +246,10 @@ class PlannedChain:
             self.constants.append((plan.place_b if run_first else plan.place_a).pack(const.data))
             self.first.append(run_first)
             legs, charge = plan.out_legs, plan.out_charge
+        self._out_place = self.plans[-1].place_o
+        if out_perm is not None and tuple(out_perm) != tuple(range(len(legs))):
+            self._out_place = _permuted(self._out_place, legs, charge, tuple(out_perm))
+            legs = tuple(legs[p] for p in out_perm)
         self.out_legs, self.out_charge = legs, charge
         self.running = [None if p is None else (p.place_a if f else p.place_b) for p, f in zip(self.plans, self.first)]
         for k, (x_legs, x_charge, ax_run, const, ax_const) in pending.items():
@@ -255,9 +259,20 @@ class PlannedChain:
                                     *[d.values.dtype for d in self.directs.values()])
 
         # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
-        # every application
+        # every application; the matrix views of every large group are cut once too
         self._packed_in = [None if p is None else np.empty(p.size, dtype=self.dtype) for p in self.running]
         self._products = [None if p is None else np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
+        self._bound = [None if p is None else self._bind(k) for k, p in enumerate(self.plans)]
+
+    def _bind(self, k: int):
+        """Operands, product buffer, small groups and the (A, B, C) matrix views of every large
+        group of step k, on the chain's fixed buffers."""
+        plan, x, pc = self.plans[k], self._packed_in[k], self._products[k]
+        a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
+        views = [(a[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
+                  b[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
+                  pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol)) for g in plan.large]
+        return a, b, pc, plan.small if len(plan.small) else None, views
 
     @property
     def flops(self) -> int:
@@ -265,22 +280,42 @@ class PlannedChain:
 
     def __call__(self, data: np.ndarray) -> np.ndarray:
         """Flat data of the final result for the running tensor's flat ``data``."""
-        x = self.running[0].pack(np.asarray(data, dtype=self.dtype))   # a real tensor, complex constants
+        data = np.asarray(data)
+        if np.result_type(data.dtype, self.dtype) != self.dtype:
+            data = data.astype(self.dtype)
+        r = self.running[0]         # a real tensor meets complex constants: packing converts
+        pack_into(data, r.shapes, r.offsets, r.rows, r.cols, r.dest, r.ld, self._packed_in[0])
         last = len(self.plans) - 1
-        for k, plan in enumerate(self.plans):
-            if plan is None:           # done by the previous step, straight into step k + 1's packing
+        for k, bound in enumerate(self._bound):
+            if bound is None:          # done by the previous step, straight into step k + 1's packing
                 continue
-            a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
-            products = gemm_groups(plan, a, b, self.dtype, self._products[k])
+            a, b, products, small, views = bound
+            products[-1] = 0
+            if small is not None:
+                small_products(a, b, products, small)
+            for va, vb, vc in views:
+                np.matmul(va, vb, out=vc)
+            plan = self.plans[k]
             if k == last:
-                return plan.place_o.unpack(products)
+                return self._out_place.unpack(products)
             if k + 1 in self.directs:
-                x = self.directs[k + 1](products, self._packed_in[k + 2])
+                self.directs[k + 1](products, self._packed_in[k + 2])
                 continue
             o, n = plan.place_o, self.running[k + 1]
-            x = repack_blocks(products, o.shapes, o.rows, o.cols, o.dest, o.ld, n.rows, n.cols, n.dest, n.ld,
-                              self._packed_in[k + 1])
-        return x
+            repack_blocks(products, o.shapes, o.rows, o.cols, o.dest, o.ld, n.rows, n.cols, n.dest, n.ld,
+                          self._packed_in[k + 1])
+        raise AssertionError("a planned chain ends with a planned contraction")
+
+
+def _permuted(place: Placement, legs, charge, perm) -> Placement:
+    """The placement of a result's blocks for the result with its legs permuted (leg i is leg
+    ``perm[i]``): unpacking through it writes the permuted tensor directly, no transpose after."""
+    dst = layout(tuple(legs[p] for p in perm), charge)
+    order = permuted_blocks(layout(legs, charge), dst, perm)
+    where = np.empty(len(perm), dtype=np.int64)
+    where[list(perm)] = np.arange(len(perm))
+    return Placement(dst.shape_array, dst.offsets, where[place.rows], where[place.cols], place.dest[order],
+                     place.ld[order], place.size)
 
 
 plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)

@@ -283,7 +283,12 @@ def pack_blocks(data, shapes, offsets, row_axes, col_axes, dest, ld, size):  # p
     """Copy every block with ``dest[b] >= 0`` into its rectangle of the packed group matrices
     (the data moves of :func:`block_map` without building an index map, which would cost as
     much as the copy and then be read again). The blocks must cover the packed buffer."""
-    out = np.empty(size, data.dtype)
+    return pack_into(data, shapes, offsets, row_axes, col_axes, dest, ld, np.empty(size, data.dtype))
+
+
+@njit(cache=True, nogil=True)
+def pack_into(data, shapes, offsets, row_axes, col_axes, dest, ld, out):  # pragma: no cover
+    """:func:`pack_blocks` into a given buffer (of any dtype ``data`` converts to)."""
     nb, r = shapes.shape
     big = _largest_block(offsets)
     rsum = np.empty(big, np.int64)

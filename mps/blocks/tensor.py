@@ -69,6 +69,15 @@ def layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
     return Layout(legs, tuple(charge), keys, shapes, offsets)
 
 
+def permuted_blocks(src: Layout, dst: Layout, perm) -> np.ndarray:
+    """For every block of ``dst`` (the layout of ``src``'s legs permuted: leg i of dst is leg
+    ``perm[i]`` of src), the index of the same block in ``src``."""
+    back = np.empty(len(perm), dtype=np.int64)
+    back[list(perm)] = np.arange(len(perm))
+    radix = mixed_radix([leg.nsec for leg in src.legs])
+    return np.searchsorted(src.key_array @ radix, dst.key_array[:, back] @ radix)
+
+
 class BlockTensor:
     """A tensor whose non-zero entries are confined to charge-allowed blocks.
 
@@ -222,11 +231,7 @@ class BlockTensor:
             return self.copy()
         legs = tuple(self.legs[p] for p in perm)
         src, dst = self.layout, layout(legs, self.charge)
-        # block i of the result comes from the source block whose keys are its keys permuted back
-        back = np.empty(len(perm), dtype=np.int64)
-        back[list(perm)] = np.arange(len(perm))
-        radix = mixed_radix([leg.nsec for leg in self.legs])
-        order = np.searchsorted(src.key_array @ radix, dst.key_array[:, back] @ radix)
+        order = permuted_blocks(src, dst, perm)
         dest = np.empty(src.nblocks, dtype=np.int64)
         dest[order] = dst.offsets[:-1]
         spots = block_map(src.shape_array, src.offsets, np.asarray(perm, dtype=np.int64),

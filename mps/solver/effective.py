@@ -38,9 +38,9 @@ def grow_left_counted(env: BlockTensor, a: BlockTensor, w: BlockTensor) -> tuple
     -> A*, so the intermediates move from one product's layout to the next once."""
     chain = PlannedChain(a, [(env, (0,), (2,), False),          # (bra, w, s, r)
                              (w, (1, 2), (0, 2), True),         # (bra, r, s', w')
-                             (a.conj(), (0, 2), (0, 1), False)])  # (r_bra, r, w')
-    out = BlockTensor(chain.out_legs, chain.out_charge, chain(a.data))
-    return out.transpose((0, 2, 1)), chain.flops
+                             (a.conj(), (0, 2), (0, 1), False)],  # (r_bra, r, w')
+                         out_perm=(0, 2, 1))
+    return BlockTensor(chain.out_legs, chain.out_charge, chain(a.data)), chain.flops
 
 
 def grow_right_counted(env: BlockTensor, b: BlockTensor, w: BlockTensor) -> tuple[BlockTensor, int]:
@@ -48,9 +48,9 @@ def grow_right_counted(env: BlockTensor, b: BlockTensor, w: BlockTensor) -> tupl
     FLOPs of its contractions (one planned chain, as :func:`grow_left_counted`)."""
     chain = PlannedChain(b, [(env, (2,), (2,), True),           # (l, s, r_bra, w)
                              (w, (1, 3), (2, 3), True),         # (l, r_bra, w, s')
-                             (b.conj(), (3, 1), (1, 2), False)])  # (l_bra, l, w)
-    out = BlockTensor(chain.out_legs, chain.out_charge, chain(b.data))
-    return out.transpose((0, 2, 1)), chain.flops
+                             (b.conj(), (3, 1), (1, 2), False)],  # (l_bra, l, w)
+                         out_perm=(0, 2, 1))
+    return BlockTensor(chain.out_legs, chain.out_charge, chain(b.data)), chain.flops
 
 
 def grow_left(env: BlockTensor, a: BlockTensor, w: BlockTensor) -> BlockTensor:

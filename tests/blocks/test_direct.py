@@ -69,7 +69,8 @@ def three_step_chains(draw):
     steps = [(a, (0,), (len(a_legs) - 1,), False),
              (c, tuple(con), tuple(range(ncon)), True),
              (b, tuple(b_con), tuple(range(nb)), True)]
-    return t, steps
+    nout = len(y_legs) - nb + len(b_free)
+    return t, steps, tuple(draw(st.permutations(range(nout))))
 
 
 def _base(leg, originals):
@@ -91,10 +92,12 @@ def _dense_chain(t, steps):
 @given(case=three_step_chains())
 def test_direct_step_matches_gemm_chain_and_dense(case):
     """With every sparse middle constant forced onto the direct path, the chain gives the GEMM
-    chain's result and dense numpy's, whether or not every slab of the result is reached."""
-    t, steps = case
+    chain's result and dense numpy's, whether or not every slab of the result is reached; with
+    ``out_perm`` it writes the result with its legs permuted."""
+    t, steps, perm = case
     with mock.patch.object(direct, "DIRECT_REUSE", np.inf):
         fast = PlannedChain(t, steps)
+        permuted = PlannedChain(t, steps, out_perm=perm)
     slow = PlannedChain(t, steps, direct=False)
     assert not slow.directs
     assert (1 in fast.directs) == bool(np.any(steps[1][0].data))
@@ -104,6 +107,8 @@ def test_direct_step_matches_gemm_chain_and_dense(case):
         out = BlockTensor(chain.out_legs, chain.out_charge, chain(t.data).astype(chain.dtype))
         assert_matches_dense(out, expected, atol=1e-11)
     np.testing.assert_allclose(fast(t.data), slow(t.data), rtol=0, atol=1e-11)
+    out = BlockTensor(permuted.out_legs, permuted.out_charge, permuted(t.data))
+    assert_matches_dense(out, np.transpose(expected, perm), atol=1e-11)
 
 
 @FAST
