@@ -215,10 +215,19 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
             for g in range(ng):
                 d += e_offs[e, free_c[g]] * wd[nf + g]
             entry[t], src[t], dst[t] = e, s, d
+            # the free leg with the shortest destination stride (then source stride) runs
+            # innermost: unit strides on both sides make the inner loop a plain vector AXPY
+            inner = 0
+            for i in range(1, nf):
+                if (wd[i], ws[free_x[i]]) < (wd[inner], ws[free_x[inner]]):
+                    inner = i
+            j = 0
             for i in range(nf):
-                extent[t, i] = x_shapes[b, free_x[i]]
-                src_step[t, i] = ws[free_x[i]]
-                dst_step[t, i] = wd[i]
+                if i != inner:
+                    extent[t, j], src_step[t, j], dst_step[t, j] = x_shapes[b, free_x[i]], ws[free_x[i]], wd[i]
+                    j += 1
+            extent[t, nf - 1] = x_shapes[b, free_x[inner]]
+            src_step[t, nf - 1], dst_step[t, nf - 1] = ws[free_x[inner]], wd[inner]
             t += 1
     order = np.argsort(dst[:t], kind="mergesort")
     first = np.zeros(t, np.bool_)

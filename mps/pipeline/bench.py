@@ -46,7 +46,7 @@ from mps.blocks.contract import PlannedChain, planning_seconds
 from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import build_mpo
 from mps.chain.state import ChainState, canonicalize
-from mps.solver.effective import apply_merged, merge_pair
+from mps.solver.effective import apply_merged, merge_pair, two_site_steps
 from mps.solver.sweep import SectorSweeper, Stage, SweepSettings, default_update
 
 
@@ -108,8 +108,7 @@ def application_figures(bond: int, repeats: int) -> dict:
     rng = np.random.default_rng(5)
     problem = effective_problem(bond, rng)
     left, pair, right, theta = problem
-    chain = PlannedChain(theta, [(left, (0,), (2,), False), (pair, (1, 2, 3), (0, 1, 2), True),
-                                 (right, (1, 4), (2, 1), True)])
+    chain = PlannedChain(theta, two_site_steps(left, pair, right))
     t_block = best_time(lambda: chain(theta.data), repeats)
     dense = [t.to_dense() for t in problem]
     t_dense = best_time(lambda: dense_application(*dense), max(1, repeats // 2))

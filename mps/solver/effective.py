@@ -104,16 +104,23 @@ class LocalOperator:
         return self.chain(vec)
 
 
+def two_site_steps(left: BlockTensor, pair: BlockTensor, right: BlockTensor) -> list:
+    """The chain of H_eff on two-site tensors (l, s1, s2, r): left environment, the merged MPO
+    pair (:func:`merge_pair`, applied entry by entry), right environment. The last step
+    contracts (MPO bond, r) in that order, so that r runs fastest in its packing, as it does in
+    the first step's products: the MPO step then moves contiguous runs."""
+    return [(left, (0,), (2,), False), (pair, (1, 2, 3), (0, 1, 2), True), (right, (4, 1), (1, 2), True)]
+
+
 def two_site_operator(left: BlockTensor, pair: BlockTensor, right: BlockTensor, theta: BlockTensor) -> LocalOperator:
-    """H_eff on two-site tensors (l, s1, s2, r); ``pair`` is the merged MPO (:func:`merge_pair`)."""
-    return LocalOperator(theta, [(left, (0,), (2,), False), (pair, (1, 2, 3), (0, 1, 2), True),
-                                 (right, (1, 4), (2, 1), True)])
+    """H_eff on two-site tensors (l, s1, s2, r) (:func:`two_site_steps`)."""
+    return LocalOperator(theta, two_site_steps(left, pair, right))
 
 
 def one_site_operator(left: BlockTensor, w: BlockTensor, right: BlockTensor, m: BlockTensor) -> LocalOperator:
     """H_eff on one-site tensors (l, s, r): left environment -> M -> W -> right environment,
     O(D^3 d w) per application instead of the two-site O(D^3 d^2 w)."""
-    return LocalOperator(m, [(left, (0,), (2,), False), (w, (1, 2), (0, 2), True), (right, (1, 3), (2, 1), True)])
+    return LocalOperator(m, [(left, (0,), (2,), False), (w, (1, 2), (0, 2), True), (right, (3, 1), (1, 2), True)])
 
 
 def expansion_right(left: BlockTensor, m: BlockTensor, w: BlockTensor) -> BlockTensor:
