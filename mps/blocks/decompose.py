@@ -150,22 +150,20 @@ def choose_kept(spectra: list[np.ndarray], max_bond: int | None, discard: float,
     allv = np.concatenate(spectra) if spectra else np.zeros(0)
     if allv.size == 0 or not np.any(allv > 0):
         raise ValueError("cannot truncate a zero tensor")
-    w = np.sort(allv**2)[::-1]
+    order = np.argsort(-allv, kind="stable")     # descending; ties: earlier sectors first
+    desc = allv[order]
+    w = desc**2
     total = w.sum()
     tail = np.concatenate([np.cumsum(w[::-1])[::-1][1:], [0.0]]) / total  # weight dropped if we keep i+1
     keep = int(np.argmax(tail <= discard)) + 1
-    keep = min(keep, int(np.count_nonzero(np.sort(allv)[::-1] > min_value)) or 1)
+    keep = min(keep, int(np.count_nonzero(desc > min_value)) or 1)
     if max_bond is not None:
         keep = min(keep, int(max_bond))
     keep = max(keep, 1)
-    threshold = np.sort(allv)[::-1][keep - 1]
-    kept = [int(np.count_nonzero(s >= threshold)) for s in spectra]
-    excess = sum(kept) - keep       # ties at the threshold: drop from the end
-    for i in reversed(range(len(kept))):
-        while excess > 0 and kept[i] > 0 and spectra[i][kept[i] - 1] == threshold:
-            kept[i] -= 1
-            excess -= 1
-    return kept
+    # the kept values are the first ``keep`` of the ranking: each sector keeps its largest ones,
+    # and ties at the threshold are dropped from the last sectors first
+    sector = np.repeat(np.arange(len(spectra)), [len(x) for x in spectra])
+    return np.bincount(sector[order[:keep]], minlength=len(spectra)).tolist()
 
 
 def dense_svd(m: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
