@@ -18,12 +18,12 @@ from typing import NamedTuple
 
 import numpy as np
 
-from mps.blocks.charges import FusionMap, Leg, fuse
-from mps.blocks.direct import direct_legs, plan_direct, use_direct
+from mps.blocks.charges import _BIAS, _SHIFT, FusionMap, Leg, charge_bound, fuse
+from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
 from mps.blocks.kernels import pack_blocks, pack_into, repack_blocks, small_products, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
-from mps.blocks.plan_kernel import plan_places
-from mps.blocks.tensor import BlockTensor, layout, permuted_blocks
+from mps.blocks.plan_kernel import plan_all, plan_places
+from mps.blocks.tensor import BlockTensor, Layout, layout, permuted_blocks
 
 SMALL_GEMM = 2048
 """Largest group (multiply-adds) done by the compiled loop: measured crossover with one numpy
@@ -46,7 +46,7 @@ class Placement(NamedTuple):
     """Where the blocks of one operand (or of the result) sit in the packed group matrices:
     block b's rows run over legs ``rows``, its columns over ``cols``, and its top-left entry is
     packed position ``dest[b]`` of a matrix with ``ld[b]`` columns (-1: in no group). ``size``
-    is the packed length."""
+    is the packed length; ``keys`` the blocks' sector indices (the layout's key array)."""
 
     shapes: np.ndarray
     offsets: np.ndarray
@@ -55,6 +55,7 @@ class Placement(NamedTuple):
     dest: np.ndarray
     ld: np.ndarray
     size: int
+    keys: np.ndarray
 
     def pack(self, data: np.ndarray) -> np.ndarray:
         """The operand's flat data as packed group matrices (one compiled copy)."""
@@ -145,28 +146,36 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     k = a_legs[0].nq
     free_a = tuple(i for i in range(len(a_legs)) if i not in axes_a)
     free_b = tuple(i for i in range(len(b_legs)) if i not in axes_b)
-    fa = _fusion(tuple(a_legs[i] for i in free_a), k)
-    fb = _fusion(tuple(b_legs[i] for i in free_b), k)
-    fm = _fusion(tuple(a_legs[i] for i in axes_a), k)
     lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
     out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
-    lay_o = layout(out_legs, out_charge) if out_legs else None
     rows_a, mids_a, mids_b, cols_b = _axes(free_a), _axes(tuple(axes_a)), _axes(tuple(axes_b)), _axes(free_b)
-    groups, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = plan_places(
-        _arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o), len(free_a),
-        fa.arrays, fm.arrays, fb.arrays)
+    if out_legs and charge_bound(out_legs) + max(map(abs, out_charge)) < _BIAS:
+        # one compiled call: fusions, the result's layout (handed to the layout cache) and places
+        places, packed_o, keys_o, shapes_o, offs_o = plan_all(
+            lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
+            np.array(out_charge, dtype=np.int64), _SHIFT, _BIAS)
+        lay_o = layout.put(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
+    else:
+        # a scalar result, or charges too large (the layout raises the error)
+        fa = _fusion(tuple(a_legs[i] for i in free_a), k)
+        fb = _fusion(tuple(b_legs[i] for i in free_b), k)
+        fm = _fusion(tuple(a_legs[i] for i in axes_a), k)
+        lay_o = layout(out_legs, out_charge) if out_legs else None
+        places = plan_places(_arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o),
+                             len(free_a), fa.arrays, fm.arrays, fb.arrays)
+    groups, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = places
     if holes[0] or holes[1]:
         raise AssertionError("contraction plan left a hole in a group matrix")
     pa, pb, pc = sizes.tolist()
-    place_a = Placement(lay_a.shape_array, lay_a.offsets, rows_a, mids_a, dest_a, ld_a, pa)
-    place_b = Placement(lay_b.shape_array, lay_b.offsets, mids_b, cols_b, dest_b, ld_b, pb)
+    place_a = Placement(lay_a.shape_array, lay_a.offsets, rows_a, mids_a, dest_a, ld_a, pa, lay_a.key_array)
+    place_b = Placement(lay_b.shape_array, lay_b.offsets, mids_b, cols_b, dest_b, ld_b, pb, lay_b.key_array)
     place_o = None
     if out_legs:
         na = len(free_a)
         place_o = Placement(lay_o.shape_array, lay_o.offsets, _axes(tuple(range(na))),
                             _axes(tuple(range(na, len(out_legs)))),
-                            dest_o, ld_o, pc)
+                            dest_o, ld_o, pc, lay_o.key_array)
     return ContractionPlan(out_legs, out_charge, groups, pc, lay_o.size if out_legs else 1,
                            place_a, place_b, place_o)
 
@@ -315,7 +324,7 @@ def _permuted(place: Placement, legs, charge, perm) -> Placement:
     where = np.empty(len(perm), dtype=np.int64)
     where[list(perm)] = np.arange(len(perm))
     return Placement(dst.shape_array, dst.offsets, where[place.rows], where[place.cols], place.dest[order],
-                     place.ld[order], place.size)
+                     place.ld[order], place.size, dst.key_array)
 
 
 plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)
@@ -324,8 +333,12 @@ entries and the two placements (which the cached step keeps alive, so their ids 
 
 
 def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src: Placement, dst: Placement):
-    key = (x_legs, x_charge, ax_run, const.legs, const.charge, ax_const, const.dtype.str, const.data.tobytes(),
-           id(src), id(dst))
+    """The direct step of ``const`` between two placements, cached. The placements fix both
+    structures (they belong to cached plans of those structures) and the entries fix the
+    constant, so their identities are the key; the cached step keeps all three alive, so an id
+    never passes to another object while it is a key."""
+    entries = nonzero_entries(const)
+    key = (id(entries), ax_run, ax_const, id(src), id(dst))
     return plan_direct_cached.lookup(key, x_legs, x_charge, ax_run, const, ax_const, src, dst)
 
 

@@ -25,7 +25,7 @@ from numba import njit
 
 from mps.blocks.charges import Leg, mixed_radix
 from mps.blocks.kernels import weights
-from mps.blocks.tensor import BlockTensor, layout
+from mps.blocks.tensor import BlockTensor
 
 DIRECT_REUSE = 4.0
 """A constant is applied entry by entry when it has at most this many non-zero entries per
@@ -52,7 +52,7 @@ class DirectStep:
     src_step: np.ndarray
     dst_step: np.ndarray
     zero: bool
-    placements: tuple = ()     # the source and destination placements, kept alive for the cache key
+    keep: tuple = ()     # the two placements and the constant's entries, alive for the cache key
 
     @property
     def nbytes(self) -> int:
@@ -139,18 +139,18 @@ def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place,
     free_x = np.array([i for i in range(len(x_legs)) if i not in axes_x], dtype=np.int64)
     free_c = np.array([i for i in range(const.ndim) if i not in axes_c], dtype=np.int64)
     con_x, con_c = np.array(axes_x, dtype=np.int64), np.array(axes_c, dtype=np.int64)
-    keys, offs, values, _ = nonzero_entries(const)
-    lay_x, lay_o = layout(x_legs, x_charge), layout(out_legs, out_charge)
+    entries = nonzero_entries(const)
+    keys, offs, values = entries.keys, entries.offsets, entries.values
     con_radix = mixed_radix([const.legs[i].nsec for i in axes_c])
     out_radix = mixed_radix([leg.nsec for leg in out_legs])
     order = np.argsort(keys[:, con_c] @ con_radix, kind="stable")
-    tasks = direct_tasks(lay_x.key_array, src_place.shapes, src_place.rows, src_place.cols, src_place.dest,
+    tasks = direct_tasks(src_place.keys, src_place.shapes, src_place.rows, src_place.cols, src_place.dest,
                          src_place.ld, free_x, con_x, keys[order], offs[order], free_c, con_c, con_radix,
-                         lay_o.key_array @ out_radix, out_radix, dst_place.shapes, dst_place.rows,
+                         dst_place.keys @ out_radix, out_radix, dst_place.shapes, dst_place.rows,
                          dst_place.cols, dst_place.dest, dst_place.ld)
     entry, src, dst, first, extent, src_step, dst_step, zero = tasks
     return DirectStep(out_legs, out_charge, src, dst, first, values[order][entry], extent, src_step, dst_step,
-                      bool(zero), (src_place, dst_place))
+                      bool(zero), (src_place, dst_place, entries))
 
 
 @njit(cache=True, nogil=True)

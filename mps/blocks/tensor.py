@@ -10,8 +10,9 @@ structure (cached).
 
 from __future__ import annotations
 
+from collections import OrderedDict
 from dataclasses import dataclass
-from functools import cached_property, lru_cache
+from functools import cached_property
 
 import numpy as np
 
@@ -33,6 +34,7 @@ class Layout:
     key_array: np.ndarray
     shape_array: np.ndarray
     offsets: np.ndarray
+    packed: tuple = ()      # the legs as flat arrays (:func:`mps.blocks.charges.pack_legs`)
 
     @property
     def size(self) -> int:
@@ -55,9 +57,7 @@ class Layout:
         return {key: i for i, key in enumerate(self.keys)}
 
 
-@lru_cache(maxsize=8192)
-def layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
-    """Allowed non-empty blocks of a tensor with ``legs`` and total charge ``charge``."""
+def _build_layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
     if not legs:
         raise ValueError("a block tensor needs at least one leg")
     k = legs[0].nq
@@ -65,8 +65,41 @@ def layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
         raise ValueError("all legs and the total charge must have the same number of charges")
     if charge_bound(legs) + max(map(abs, charge)) >= _BIAS:
         raise ValueError(f"charges must be smaller than {_BIAS} in magnitude")
-    keys, shapes, offsets = allowed_blocks(*pack_legs(legs), np.asarray(charge, dtype=np.int64), _SHIFT, _BIAS)
-    return Layout(legs, tuple(charge), keys, shapes, offsets)
+    packed = pack_legs(legs)
+    keys, shapes, offsets = allowed_blocks(*packed, np.asarray(charge, dtype=np.int64), _SHIFT, _BIAS)
+    return Layout(legs, tuple(charge), keys, shapes, offsets, packed)
+
+
+class _LayoutCache:
+    """Least-recently-used layouts by (legs, charge); the contraction planner, which computes a
+    result's layout together with its plan, puts it here for the result tensor to find."""
+
+    def __init__(self, size: int):
+        self.size, self.items = size, OrderedDict()
+
+    def __call__(self, legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
+        """Allowed non-empty blocks of a tensor with ``legs`` and total charge ``charge``."""
+        key = (legs, charge)
+        lay = self.items.get(key)
+        if lay is None:
+            lay = self.put(_build_layout(legs, charge))
+        else:
+            self.items.move_to_end(key)
+        return lay
+
+    def put(self, lay: Layout) -> Layout:
+        self.items[(lay.legs, lay.charge)] = lay
+        if len(self.items) > self.size:
+            self.items.popitem(last=False)
+        return lay
+
+    def cache_clear(self) -> None:
+        self.items.clear()
+
+
+layout = _LayoutCache(8192)
+"""``layout(legs, charge)``: allowed non-empty blocks of a tensor with ``legs`` and total charge
+``charge`` (a :class:`Layout`, cached)."""
 
 
 def permuted_blocks(src: Layout, dst: Layout, perm) -> np.ndarray:
