@@ -6,8 +6,9 @@ The bottom layer: it imports nothing of the project. ``mps.blocks.testing`` (inv
 dense comparison, hypothesis strategies) is for tests and is not imported here.
 """
 
+from mps.blocks.chain import PlannedChain
 from mps.blocks.charges import FusionMap, Leg, fuse, leg_from_states, reachable_charges, reachable_totals
-from mps.blocks.contract import PlannedChain, contract, plan_contraction
+from mps.blocks.contract import contract, plan_contraction
 from mps.blocks.decompose import Truncation, eigh, lq, qr, scale_leg, svd
 from mps.blocks.network import contract_network
 from mps.blocks.reshape import fuse_legs, split_leg

@@ -9,9 +9,10 @@ instead every non-zero entry C[k, g] adds C[k, g] X[f, k] to Y[f, g] for all fre
 at once (a strided AXPY over one block's slab), reading X where the previous group products left
 it and writing Y where the next group product reads it: one pass, no intermediate copy.
 
-A :class:`DirectStep` is the list of those AXPYs ("tasks"), sorted by destination so that the
-first task of each destination slab writes and the others add (no zero fill where every slab
-is reached).
+A :class:`DirectStep` is the list of those AXPYs ("tasks"), grouped by the sectors of X's free
+legs (the slabs of one group fit in cache together) and sorted by destination inside a group,
+so that the first task of each destination slab writes and the others add; only slabs that no
+task reaches are zeroed.
 """
 
 from __future__ import annotations
@@ -36,38 +37,32 @@ one pass beats a GEMM's two repacks. Measured on the development machine (see
 
 @dataclass(frozen=True)
 class DirectStep:
-    """The AXPYs of one direct contraction. Task t adds ``values[t]`` times the slab of X
-    starting at packed position ``src[t]`` to the slab of Y at ``dst[t]`` (overwrites it when
-    ``first[t]``); both slabs run over X's free legs with extents ``extent[t]`` and strides
-    ``src_step[t]`` / ``dst_step[t]``. ``zero`` asks for the output to be cleared first (some
-    slab is reached by no task)."""
+    """The AXPYs of one direct contraction. Row t of ``tasks`` is (src, dst, first, extents...,
+    source strides..., destination strides...) over X's free legs: ``values[t]`` times the slab
+    of X starting at packed position src is added to the slab of Y starting at dst (written, if
+    first). Rows of ``zeros`` (start, extents..., strides...) are the slabs of Y no task reaches,
+    cleared before the tasks run."""
 
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]
-    src: np.ndarray
-    dst: np.ndarray
-    first: np.ndarray
+    tasks: np.ndarray
     values: np.ndarray
-    extent: np.ndarray
-    src_step: np.ndarray
-    dst_step: np.ndarray
-    zero: bool
+    zeros: np.ndarray
     keep: tuple = ()     # the two placements and the constant's entries, alive for the cache key
 
     @property
     def nbytes(self) -> int:
         """Memory held by the task arrays (the plan cache's weight)."""
-        return sum(a.nbytes for a in (self.src, self.dst, self.first, self.values, self.extent, self.src_step,
-                                      self.dst_step)) + 1024
+        return self.tasks.nbytes + self.values.nbytes + self.zeros.nbytes + 1024
 
     @property
     def flops(self) -> int:
         """Real multiply-adds times two of one application."""
-        return 2 * int(np.prod(self.extent, axis=1).sum()) if len(self.extent) else 0
+        nf = (self.tasks.shape[1] - 3) // 3
+        return 2 * int(np.prod(self.tasks[:, 3:3 + nf], axis=1).sum()) if len(self.tasks) else 0
 
     def __call__(self, src: np.ndarray, out: np.ndarray) -> np.ndarray:
-        return direct_apply(src, out, self.src, self.dst, self.first, self.values.astype(out.dtype, copy=False),
-                            self.extent, self.src_step, self.dst_step, self.zero)
+        return direct_apply(src, out, self.tasks, self.values.astype(out.dtype, copy=False), self.zeros)
 
 
 def direct_legs(x_legs: tuple[Leg, ...], x_charge: tuple[int, ...], axes_x: tuple[int, ...],
@@ -148,9 +143,8 @@ def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place,
                          src_place.ld, free_x, con_x, keys[order], offs[order], free_c, con_c, con_radix,
                          dst_place.keys @ out_radix, out_radix, dst_place.shapes, dst_place.rows,
                          dst_place.cols, dst_place.dest, dst_place.ld)
-    entry, src, dst, first, extent, src_step, dst_step, zero = tasks
-    return DirectStep(out_legs, out_charge, src, dst, first, values[order][entry], extent, src_step, dst_step,
-                      bool(zero), (src_place, dst_place, entries))
+    entry, rows, zeros = tasks
+    return DirectStep(out_legs, out_charge, rows, values[order][entry], zeros, (src_place, dst_place, entries))
 
 
 @njit(cache=True, nogil=True)
@@ -159,7 +153,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
                  o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # pragma: no cover - compiled
     """Every (block of X, non-zero entry) pair that meets on the contracted sectors and lands in a
     packed block of the result; entries come sorted by the code of their contracted sectors.
-    Returns (entry, src, dst, first, extent, src_step, dst_step, zero) with tasks sorted by dst."""
+    Returns (entry of each task, the task rows of :class:`DirectStep`, its zero slabs)."""
     nb, r = x_shapes.shape
     ne = e_keys.shape[0]
     nf, nk, ng = len(free_x), len(con_x), len(free_c)
@@ -183,6 +177,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
     extent = np.empty((cap, nf), np.int64)
     src_step = np.empty((cap, nf), np.int64)
     dst_step = np.empty((cap, nf), np.int64)
+    group = np.empty(cap, np.int64)
     ws = np.empty(r, np.int64)
     wd = np.empty(nf + ng, np.int64)
     t = 0
@@ -214,7 +209,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
             d = dst_dest[bo]
             for g in range(ng):
                 d += e_offs[e, free_c[g]] * wd[nf + g]
-            entry[t], src[t], dst[t] = e, s, d
+            entry[t], src[t], dst[t], group[t] = e, s, d, base
             # the free leg with the shortest destination stride (then source stride) runs
             # innermost: unit strides on both sides make the inner loop a plain vector AXPY
             inner = 0
@@ -229,48 +224,99 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
             extent[t, nf - 1] = x_shapes[b, free_x[inner]]
             src_step[t, nf - 1], dst_step[t, nf - 1] = ws[free_x[inner]], wd[inner]
             t += 1
-    order = np.argsort(dst[:t], kind="mergesort")
-    first = np.zeros(t, np.bool_)
-    covered = 0
+    # tasks of one pair of free-leg sectors together (their source and destination slabs fit in
+    # cache together), and inside it by destination (the first task of a slab writes)
+    by_dst = np.argsort(dst[:t], kind="mergesort")
+    order = by_dst[np.argsort(group[:t][by_dst], kind="mergesort")]
+    tasks = np.empty((t, 3 + 3 * nf), np.int64)
     for n in range(t):
         i = order[n]
-        if n == 0 or dst[i] != dst[order[n - 1]]:
-            first[n] = True
-            slab = 1
-            for a in range(nf):
-                slab *= extent[i, a]
-            covered += slab
-    needed = 0
-    for bo in range(len(o_codes)):
-        if dst_dest[bo] >= 0:
-            n = 1
-            for a in range(o_shapes.shape[1]):
-                n *= o_shapes[bo, a]
-            needed += n
-    zero = covered != needed
-    if zero:
-        first[:] = False
-    return (entry[order], src[order], dst[order], first, extent[order], src_step[order], dst_step[order],
-            zero)
+        tasks[n, 0], tasks[n, 1] = src[i], dst[i]
+        tasks[n, 2] = 1 if n == 0 or dst[i] != dst[order[n - 1]] else 0
+        tasks[n, 3:3 + nf] = extent[i]
+        tasks[n, 3 + nf:3 + 2 * nf] = src_step[i]
+        tasks[n, 3 + 2 * nf:] = dst_step[i]
+    return entry[order], tasks, _unreached(np.sort(dst[:t]), nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld)
 
 
 @njit(cache=True, nogil=True)
-def direct_apply(src, out, s0, d0, first, values, extent, src_step, dst_step, zero):  # pragma: no cover
-    """Run the tasks of a :class:`DirectStep` (see there); returns ``out``."""
-    if zero:
-        out[:] = 0
-    nt, nf = extent.shape
-    idx = np.zeros(nf, np.int64)
-    for t in range(nt):
-        v = values[t]
-        nl, sl, dl = extent[t, nf - 1], src_step[t, nf - 1], dst_step[t, nf - 1]
+def _unreached(starts, nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # pragma: no cover - compiled
+    """Slabs of the result no task writes (rows: start, extents, strides over the free legs of
+    X, the shortest stride last): they are zeroed before the tasks run."""
+    nb, r = o_shapes.shape
+    wd = np.empty(r, np.int64)
+    out = np.empty((0, 1 + 2 * nf), np.int64)
+    rows = []
+    for bo in range(nb):
+        if dst_dest[bo] < 0:
+            continue
+        weights(o_shapes[bo], dst_rows, dst_cols, dst_ld[bo], wd)
+        count = 1
+        for a in range(nf, r):
+            count *= o_shapes[bo, a]
+        for c in range(count):          # every combination of offsets on the constant's legs
+            d, rest = dst_dest[bo], c
+            for a in range(r - 1, nf - 1, -1):
+                d += (rest % o_shapes[bo, a]) * wd[a]
+                rest //= o_shapes[bo, a]
+            pos = np.searchsorted(starts, d)
+            if pos < len(starts) and starts[pos] == d:
+                continue
+            row = np.empty(1 + 2 * nf, np.int64)
+            row[0] = d
+            inner = 0
+            for i in range(1, nf):
+                if wd[i] < wd[inner]:
+                    inner = i
+            j = 0
+            for i in range(nf):
+                if i != inner:
+                    row[1 + j], row[1 + nf + j] = o_shapes[bo, i], wd[i]
+                    j += 1
+            row[nf], row[2 * nf] = o_shapes[bo, inner], wd[inner]
+            rows.append(row)
+    if rows:
+        out = np.empty((len(rows), 1 + 2 * nf), np.int64)
+        for n in range(len(rows)):
+            out[n] = rows[n]
+    return out
+
+
+@njit(cache=True, nogil=True)
+def direct_apply(src, out, tasks, values, zeros):  # pragma: no cover - compiled
+    """Run a :class:`DirectStep`: zero the unreached slabs, then every task (see there)."""
+    nf = (tasks.shape[1] - 3) // 3 if tasks.shape[0] else (zeros.shape[1] - 1) // 2
+    idx = np.zeros(max(nf, 1), np.int64)
+    for z in range(zeros.shape[0]):
+        nl, dl = zeros[z, nf], zeros[z, 2 * nf]
         count = 1
         for a in range(nf - 1):
-            count *= extent[t, a]
+            count *= zeros[z, 1 + a]
             idx[a] = 0
-        ps, pd = s0[t], d0[t]
+        pd = zeros[z, 0]
         for _ in range(count):
-            if first[t]:
+            for i in range(nl):
+                out[pd + i * dl] = 0
+            j = nf - 2
+            while j >= 0:
+                idx[j] += 1
+                pd += zeros[z, 1 + nf + j]
+                if idx[j] < zeros[z, 1 + j]:
+                    break
+                pd -= idx[j] * zeros[z, 1 + nf + j]
+                idx[j] = 0
+                j -= 1
+    for t in range(tasks.shape[0]):
+        v = values[t]
+        first = tasks[t, 2] == 1
+        nl, sl, dl = tasks[t, 2 + nf], tasks[t, 2 + 2 * nf], tasks[t, 2 + 3 * nf]
+        count = 1
+        for a in range(nf - 1):
+            count *= tasks[t, 3 + a]
+            idx[a] = 0
+        ps, pd = tasks[t, 0], tasks[t, 1]
+        for _ in range(count):
+            if first:
                 for i in range(nl):
                     out[pd + i * dl] = v * src[ps + i * sl]
             else:
@@ -279,12 +325,12 @@ def direct_apply(src, out, s0, d0, first, values, extent, src_step, dst_step, ze
             j = nf - 2
             while j >= 0:
                 idx[j] += 1
-                ps += src_step[t, j]
-                pd += dst_step[t, j]
-                if idx[j] < extent[t, j]:
+                ps += tasks[t, 3 + nf + j]
+                pd += tasks[t, 3 + 2 * nf + j]
+                if idx[j] < tasks[t, 3 + j]:
                     break
-                ps -= idx[j] * src_step[t, j]
-                pd -= idx[j] * dst_step[t, j]
+                ps -= idx[j] * tasks[t, 3 + nf + j]
+                pd -= idx[j] * tasks[t, 3 + 2 * nf + j]
                 idx[j] = 0
                 j -= 1
     return out

@@ -41,8 +41,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from models import get_family
+from mps.blocks.chain import PlannedChain, planning_seconds
 from mps.blocks.charges import Leg
-from mps.blocks.contract import PlannedChain, planning_seconds
 from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import build_mpo
 from mps.chain.state import ChainState, canonicalize

@@ -12,8 +12,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from mps.blocks.chain import PlannedChain
 from mps.blocks.charges import Leg
-from mps.blocks.contract import PlannedChain, contract
+from mps.blocks.contract import contract
 from mps.blocks.decompose import lq, qr
 from mps.blocks.tensor import BlockTensor
 

@@ -1,0 +1,145 @@
+"""Planned chains: a running tensor contracted with a fixed sequence of constant tensors, the
+form of the effective Hamiltonian and of the environment updates.
+
+Every step is planned once (:mod:`mps.blocks.contract`), the constants are packed once, and
+between steps the intermediate never becomes a block tensor: a compiled pass moves it from one
+step's products into the next step's packing, or a sparse MPO step is applied entry by entry
+on the way (:mod:`mps.blocks.direct`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from mps.blocks.contract import Placement, plan_contraction
+from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
+from mps.blocks.kernels import pack_into, repack_blocks, small_products
+from mps.blocks.plan_cache import PlanCache
+from mps.blocks.tensor import BlockTensor, layout, permuted_blocks
+
+
+class PlannedChain:
+    """A fixed sequence of contractions of a running tensor with constant tensors.
+
+    ``steps`` are ``(constant, axes of the running tensor, axes of the constant, running_first)``;
+    each step contracts the previous result with its constant (as the first operand of the
+    contraction when ``running_first``). The constants are packed once, and between steps the
+    result is never laid out as blocks: one compiled pass moves every block from its place among
+    one step's products to its place in the next step's packing
+    (:func:`mps.blocks.kernels.repack_blocks`). A middle step whose constant is small and sparse
+    (an MPO tensor, :func:`mps.blocks.direct.use_direct`) is done entry by entry instead, from the
+    previous step's products straight into the next step's packing (:mod:`mps.blocks.direct`).
+    Used for the effective Hamiltonian, whose Krylov iterations repeat the same chain many times.
+    """
+
+    def __init__(self, template: BlockTensor, steps, direct: bool = True, out_perm=None):
+        legs, charge = template.legs, template.charge
+        self.plans, self.constants, self.first, self.directs = [], [], [], {}
+        pending = {}
+        for k, (const, ax_run, ax_const, run_first) in enumerate(steps):
+            ax_run = tuple(int(i) % len(legs) for i in ax_run)
+            ax_const = tuple(int(i) % const.ndim for i in ax_const)
+            if (direct and run_first and 0 < k < len(steps) - 1 and self.plans[k - 1] is not None
+                    and use_direct(const, ax_const)):
+                pending[k] = (legs, charge, ax_run, const, ax_const)
+                legs, charge = direct_legs(legs, charge, ax_run, const, ax_const)
+                self.plans.append(None)
+                self.constants.append(None)
+                self.first.append(True)
+                continue
+            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
+                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
+            self.plans.append(plan)
+            self.constants.append((plan.place_b if run_first else plan.place_a).pack(const.data))
+            self.first.append(run_first)
+            legs, charge = plan.out_legs, plan.out_charge
+        self._out_place = self.plans[-1].place_o
+        if out_perm is not None and tuple(out_perm) != tuple(range(len(legs))):
+            self._out_place = _permuted(self._out_place, legs, charge, tuple(out_perm))
+            legs = tuple(legs[p] for p in out_perm)
+        self.out_legs, self.out_charge = legs, charge
+        self.running = [None if p is None else (p.place_a if f else p.place_b) for p, f in zip(self.plans, self.first)]
+        for k, (x_legs, x_charge, ax_run, const, ax_const) in pending.items():
+            self.directs[k] = plan_direct_step(x_legs, x_charge, ax_run, const, ax_const,
+                                               self.plans[k - 1].place_o, self.running[k + 1])
+        self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants if c is not None],
+                                    *[d.values.dtype for d in self.directs.values()])
+
+        # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
+        # every application; the matrix views of every large group are cut once too
+        self._packed_in = [None if p is None else np.empty(p.size, dtype=self.dtype) for p in self.running]
+        self._products = [None if p is None else np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
+        self._bound = [None if p is None else self._bind(k) for k, p in enumerate(self.plans)]
+
+    def _bind(self, k: int):
+        """Operands, product buffer, small groups and the (A, B, C) matrix views of every large
+        group of step k, on the chain's fixed buffers."""
+        plan, x, pc = self.plans[k], self._packed_in[k], self._products[k]
+        a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
+        views = [(a[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
+                  b[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
+                  pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol)) for g in plan.large]
+        return a, b, pc, plan.small if len(plan.small) else None, views
+
+    @property
+    def flops(self) -> int:
+        return sum(p.flops for p in self.plans if p is not None) + sum(d.flops for d in self.directs.values())
+
+    def __call__(self, data: np.ndarray) -> np.ndarray:
+        """Flat data of the final result for the running tensor's flat ``data``."""
+        data = np.asarray(data)
+        if np.result_type(data.dtype, self.dtype) != self.dtype:
+            data = data.astype(self.dtype)
+        r = self.running[0]         # a real tensor meets complex constants: packing converts
+        pack_into(data, r.shapes, r.offsets, r.rows, r.cols, r.dest, r.ld, self._packed_in[0])
+        last = len(self.plans) - 1
+        for k, bound in enumerate(self._bound):
+            if bound is None:          # done by the previous step, straight into step k + 1's packing
+                continue
+            a, b, products, small, views = bound
+            products[-1] = 0
+            if small is not None:
+                small_products(a, b, products, small)
+            for va, vb, vc in views:
+                np.matmul(va, vb, out=vc)
+            plan = self.plans[k]
+            if k == last:
+                return self._out_place.unpack(products)
+            if k + 1 in self.directs:
+                self.directs[k + 1](products, self._packed_in[k + 2])
+                continue
+            o, n = plan.place_o, self.running[k + 1]
+            repack_blocks(products, o.shapes, o.rows, o.cols, o.dest, o.ld, n.rows, n.cols, n.dest, n.ld,
+                          self._packed_in[k + 1])
+        raise AssertionError("a planned chain ends with a planned contraction")
+
+
+def _permuted(place: Placement, legs, charge, perm) -> Placement:
+    """The placement of a result's blocks for the result with its legs permuted (leg i is leg
+    ``perm[i]``): unpacking through it writes the permuted tensor directly, no transpose after."""
+    dst = layout(tuple(legs[p] for p in perm), charge)
+    order = permuted_blocks(layout(legs, charge), dst, perm)
+    where = np.empty(len(perm), dtype=np.int64)
+    where[list(perm)] = np.arange(len(perm))
+    return Placement(dst.shape_array, dst.offsets, where[place.rows], where[place.cols], place.dest[order],
+                     place.ld[order], place.size, dst.key_array)
+
+
+plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)
+"""Direct steps (:func:`mps.blocks.direct.plan_direct`), cached by structure, the constant's
+entries and the two placements (which the cached step keeps alive, so their ids stay theirs)."""
+
+
+def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src: Placement, dst: Placement):
+    """The direct step of ``const`` between two placements, cached. The placements fix both
+    structures (they belong to cached plans of those structures) and the entries fix the
+    constant, so their identities are the key; the cached step keeps all three alive, so an id
+    never passes to another object while it is a key."""
+    entries = nonzero_entries(const)
+    key = (id(entries), ax_run, ax_const, id(src), id(dst))
+    return plan_direct_cached.lookup(key, x_legs, x_charge, ax_run, const, ax_const, src, dst)
+
+
+def planning_seconds() -> float:
+    """Seconds spent building contraction plans and direct steps in this process."""
+    return plan_contraction.build_seconds + plan_direct_cached.build_seconds
