@@ -21,8 +21,8 @@ import numpy as np
 import scipy.linalg as sla
 
 from mps.blocks.charges import FusionMap, Leg, fuse
-from mps.blocks.kernels import leg_positions
-from mps.blocks.plan_kernel import sector_map
+from mps.blocks.kernels import leg_positions, pack_into, unpack_blocks
+from mps.blocks.plan_kernel import sector_places
 from mps.blocks.tensor import BlockTensor
 
 
@@ -42,7 +42,8 @@ def as_matrix(t: BlockTensor, row_axes, col_axes) -> MatrixBlocks:
     """Pack ``t`` into one dense matrix per charge sector of the fused row legs.
 
     Row sector r pairs with the column sector of charge Q - r; the matrices are views into one
-    buffer filled by a single gather (entries no block covers read a zero).
+    zeroed buffer filled by one compiled copy of every block into its place (entries no block
+    covers stay zero).
     """
     row_axes, col_axes = tuple(row_axes), tuple(col_axes)
     if sorted(row_axes + col_axes) != list(range(t.ndim)) or not row_axes or not col_axes:
@@ -55,9 +56,9 @@ def as_matrix(t: BlockTensor, row_axes, col_axes) -> MatrixBlocks:
                and rows.fused.sizes[rs] and cols.fused.sizes[cs]]
     shapes = [(rows.fused.sizes[rs], cols.fused.sizes[cs]) for rs, cs in sectors]
     start, ld, total = _sector_starts(rows.fused.nsec, [rs for rs, _ in sectors], shapes)
-    gather = sector_map(_arrays(t), _axes(row_axes), _axes(col_axes), rows.arrays, cols.arrays,
-                        start, ld, total, False)
-    buf = np.append(t.data, np.zeros(1, dtype=t.dtype))[gather]     # -1 reads the appended zero
+    lay, rax, cax = t.layout, _axes(row_axes), _axes(col_axes)
+    dest, width = sector_places(_arrays(t), rax, cax, rows.arrays, cols.arrays, start, ld)
+    buf = pack_into(t.data, lay.shape_array, lay.offsets, rax, cax, dest, width, np.zeros(total, dtype=t.dtype))
     mats, pos = [], 0
     for nr, nc in shapes:
         mats.append(buf[pos:pos + nr * nc].reshape(nr, nc))
@@ -87,13 +88,13 @@ def _sector_starts(nsec: int, owners: list[int], shapes: list[tuple[int, int]]):
 
 def _fill(out: BlockTensor, row_axes, col_axes, f_row, f_col, owners, mats) -> None:
     """Write dense matrices (one per row sector in ``owners``) into the blocks of ``out``."""
-    start, ld, total = _sector_starts(f_row.fused.nsec, owners, [m.shape for m in mats])
-    spots = sector_map(_arrays(out), _axes(row_axes), _axes(col_axes), f_row.arrays, f_col.arrays,
-                       start, ld, total, True)
-    if np.any(spots < 0):
+    start, ld, _ = _sector_starts(f_row.fused.nsec, owners, [m.shape for m in mats])
+    lay, rax, cax = out.layout, _axes(row_axes), _axes(col_axes)
+    dest, width = sector_places(_arrays(out), rax, cax, f_row.arrays, f_col.arrays, start, ld)
+    if np.any(dest < 0):
         raise AssertionError("a block of the factor has no matrix to come from")
     packed = np.concatenate([m.ravel() for m in mats]) if mats else np.zeros(0, dtype=out.dtype)
-    np.take(packed, spots, out=out.data)
+    out.data = unpack_blocks(packed, lay.shape_array, lay.offsets, rax, cax, dest, width)
 
 
 def _bond_leg(mb: MatrixBlocks, kept: list[int], flow: int) -> tuple[Leg, list[int]]:

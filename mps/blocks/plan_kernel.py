@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from mps.blocks.kernels import allowed_blocks, block_map, covered_entries, fuse_sectors
+from mps.blocks.kernels import allowed_blocks, covered_entries, fuse_sectors
 
 
 @njit(cache=True, nogil=True)
@@ -183,14 +183,13 @@ def plan_all(packed_a, lay_a, packed_b, lay_b, free_a, axes_a, axes_b, free_b, o
 
 
 @njit(cache=True, nogil=True)
-def sector_map(lay, row_axes, col_axes, f_row, f_col, start, ld, size, scatter):  # pragma: no cover
-    """Index map between a tensor's flat data and one dense matrix per fused row sector.
-
-    Row sector s of the fused ``row_axes`` owns the matrix at ``start[s]`` (-1: none) with ``ld[s]``
-    columns; a block lands at row offset x column offset of its row and column combinations.
-    ``scatter`` False: g[packed] = flat (-1 where no block lands); True: s[flat] = packed.
-    """
-    keys, shapes, offs = lay
+def sector_places(lay, row_axes, col_axes, f_row, f_col, start, ld):  # pragma: no cover - compiled
+    """Where every block sits among one dense matrix per fused row sector: row sector s of the
+    fused ``row_axes`` owns the matrix at ``start[s]`` (-1: none) with ``ld[s]`` columns, and a
+    block lands at its row offset x ld + column offset. Returns (dest, width) per block (dest
+    -1: no matrix), the placement :func:`mps.blocks.kernels.pack_into` and
+    :func:`mps.blocks.kernels.unpack_blocks` read."""
+    keys = lay[0]
     rs, ro = _locate(keys, row_axes, f_row)
     _, co = _locate(keys, col_axes, f_col)
     dest = np.full(len(rs), -1, np.int64)
@@ -199,4 +198,4 @@ def sector_map(lay, row_axes, col_axes, f_row, f_col, start, ld, size, scatter):
         if rs[b] >= 0 and start[rs[b]] >= 0:
             width[b] = ld[rs[b]]
             dest[b] = start[rs[b]] + ro[b] * width[b] + co[b]
-    return block_map(shapes, offs, row_axes, col_axes, dest, width, size, scatter)
+    return dest, width
