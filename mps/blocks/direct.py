@@ -84,7 +84,7 @@ class Entries(NamedTuple):
     keys: np.ndarray
     offsets: np.ndarray
     values: np.ndarray
-    verdicts: dict      # contracted axes -> use_direct's answer
+    verdicts: dict      # per contracted axes: use_direct's answer and the sorted entries
 
 
 _ENTRIES: OrderedDict = OrderedDict()
@@ -126,25 +126,37 @@ def use_direct(const: BlockTensor, axes_c: tuple[int, ...]) -> bool:
     return verdict
 
 
+def _by_contracted(entries: Entries, const: BlockTensor, axes_c: tuple[int, ...]):
+    """The constant's side of every direct step over ``axes_c`` (cached in ``entries``): free and
+    contracted axes, the mixed-radix multipliers of the contracted sectors, and the entries
+    sorted by the code of their contracted sectors."""
+    key = ("sorted", axes_c)
+    hit = entries.verdicts.get(key)
+    if hit is None:
+        free_c = np.array([i for i in range(const.ndim) if i not in axes_c], dtype=np.int64)
+        con_c = np.array(axes_c, dtype=np.int64)
+        con_radix = mixed_radix([const.legs[i].nsec for i in axes_c])
+        order = np.argsort(entries.keys[:, con_c] @ con_radix, kind="stable")
+        hit = entries.verdicts[key] = (free_c, con_c, con_radix, entries.keys[order], entries.offsets[order],
+                                       entries.values[order])
+    return hit
+
+
 def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place, dst_place) -> DirectStep:
     """Tasks of X (legs ``x_legs``, held in ``src_place``: a placement of the previous product)
     contracted over ``axes_x`` with ``const`` over ``axes_c``, written into ``dst_place`` (the
     next product's packing of the result)."""
     out_legs, out_charge = direct_legs(x_legs, x_charge, axes_x, const, axes_c)
     free_x = np.array([i for i in range(len(x_legs)) if i not in axes_x], dtype=np.int64)
-    free_c = np.array([i for i in range(const.ndim) if i not in axes_c], dtype=np.int64)
-    con_x, con_c = np.array(axes_x, dtype=np.int64), np.array(axes_c, dtype=np.int64)
+    con_x = np.array(axes_x, dtype=np.int64)
     entries = nonzero_entries(const)
-    keys, offs, values = entries.keys, entries.offsets, entries.values
-    con_radix = mixed_radix([const.legs[i].nsec for i in axes_c])
+    free_c, con_c, con_radix, keys, offs, values = _by_contracted(entries, const, tuple(axes_c))
     out_radix = mixed_radix([leg.nsec for leg in out_legs])
-    order = np.argsort(keys[:, con_c] @ con_radix, kind="stable")
-    tasks = direct_tasks(src_place.keys, src_place.shapes, src_place.rows, src_place.cols, src_place.dest,
-                         src_place.ld, free_x, con_x, keys[order], offs[order], free_c, con_c, con_radix,
-                         dst_place.keys @ out_radix, out_radix, dst_place.shapes, dst_place.rows,
-                         dst_place.cols, dst_place.dest, dst_place.ld)
-    entry, rows, zeros = tasks
-    return DirectStep(out_legs, out_charge, rows, values[order][entry], zeros, (src_place, dst_place, entries))
+    entry, rows, zeros = direct_tasks(src_place.keys, src_place.shapes, src_place.rows, src_place.cols,
+                                      src_place.dest, src_place.ld, free_x, con_x, keys, offs, free_c, con_c,
+                                      con_radix, dst_place.keys @ out_radix, out_radix, dst_place.shapes,
+                                      dst_place.rows, dst_place.cols, dst_place.dest, dst_place.ld)
+    return DirectStep(out_legs, out_charge, rows, values[entry], zeros, (src_place, dst_place, entries))
 
 
 @njit(cache=True, nogil=True)
