@@ -113,8 +113,11 @@ def test_state_vector_equals_exact_ground_state():
 
 def test_reusing_contraction_plans_gives_bit_identical_sweeps(monkeypatch):
     """A plan is a pure function of the block structure, so a search that rebuilds every plan
-    (a cache that keeps one plan) must give the same energies and tensors, bit for bit, as one
-    that reuses plans across bond steps and sweeps (issue requirement; checked here directly)."""
+    and every direct MPO step (caches that keep one of each) must give the same energies and
+    tensors, bit for bit, as one that reuses them across bond steps and sweeps (issue
+    requirement; checked here directly). Direct steps are cached by the identities of their
+    placements and entries, the riskiest key in the engine, so they are rebuilt too."""
+    from mps.blocks.chain import plan_direct_cached
     from mps.blocks.contract import plan_contraction
 
     settings = SweepSettings((Stage(16, 3, 0.0),), discard=0.0, energy_tol=0.0)
@@ -124,17 +127,22 @@ def test_reusing_contraction_plans_gives_bit_identical_sweeps(monkeypatch):
         _, s = solve("xxz", 12, couplings, {"Sz": 0.0}, settings=settings, seed=8)
         return s
 
-    plan_contraction.cache_clear()
-    before = plan_contraction.cache_info()
+    caches = (plan_contraction, plan_direct_cached)
+    for c in caches:
+        c.cache_clear()
+    before = [c.cache_info() for c in caches]
     reused = search()
-    reuse_info = plan_contraction.cache_info()
-    monkeypatch.setattr(plan_contraction, "max_bytes", 0)
-    plan_contraction.cache_clear()
+    reuse_info = [c.cache_info() for c in caches]
+    for c in caches:
+        monkeypatch.setattr(c, "max_bytes", 0)
+        c.cache_clear()
     rebuilt = search()
-    rebuild_info = plan_contraction.cache_info()
-    plan_contraction.cache_clear()
-    assert reuse_info.hits - before.hits > 0
-    assert rebuild_info.misses - reuse_info.misses > reuse_info.misses - before.misses  # really rebuilt
+    rebuild_info = [c.cache_info() for c in caches]
+    for c in caches:
+        c.cache_clear()
+    for b, u, r in zip(before, reuse_info, rebuild_info):
+        assert u.hits - b.hits > 0
+        assert r.misses - u.misses > u.misses - b.misses  # really rebuilt
     assert [r.energy for r in reused.progress.history] == [r.energy for r in rebuilt.progress.history]
     assert len(reused.progress.history) == 3
     for x, y in zip(reused.state.tensors, rebuilt.state.tensors):
