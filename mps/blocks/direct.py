@@ -31,8 +31,10 @@ from mps.blocks.tensor import BlockTensor
 DIRECT_REUSE = 4.0
 """A constant is applied entry by entry when it has at most this many non-zero entries per
 distinct contracted index (on average): then each entry of X is read a few times at most, and
-one pass beats a GEMM's two repacks. Measured on the development machine (see
-:func:`use_direct`)."""
+one pass beats a GEMM between two repacks. Measured on the development machine with the bench's
+two-site problem and random pairs of growing density: the two ways cost the same at about 6
+entries per index at bond 64, and entry by entry was still 13 % faster at 5.8 at bond 256. The
+MPOs of the shipped families have 1.3 (fermions) to 3.2 (complex scalar, nmax 5, merged pair)."""
 
 
 @dataclass(frozen=True)
