@@ -1,13 +1,14 @@
 """Kill campaign: a run SIGKILLed at many random moments always resumes to the uninterrupted result.
 
 The run is killed (SIGKILL, nothing of ours runs) at random times during the sweeps, the moment a
-temporary file of a checkpoint, table or plot write is seen (so mid-write), and while plots are
-drawn; after each kill the run directory must hold only whole files (a checkpoint that passes its
+temporary file of a checkpoint, table or plot write is seen (so mid-write), after a few
+checkpoints of the killed process (most of them taken inside sweeps), and while plots are drawn; after each kill the run directory must hold only whole files (a checkpoint that passes its
 checksum, tables that parse row by row, complete PNGs), and ``chargewise resume`` (``run`` when
 not even the config was written) continues. Each finished run must match an uninterrupted run of
 the same config: energy to 1e-10 and every table to 1e-10, as the design asks (DESIGN.md section
 7). Reference: the uninterrupted run itself, with the same code and seed. Checkpoints are also
-taken inside sweeps (every 0.05 s), so resumes start from the middle of sweeps as well.
+taken inside sweeps (every 0.01 s), so resumes start from the middle of sweeps as well; the
+"sweep" kills make sure of it (at 0.05 s and random kill times, faster sweeps once gave none).
 """
 
 from __future__ import annotations
@@ -39,7 +40,7 @@ CONFIG = {
                "discard": 1e-12, "energy_tol": 1e-15, "seed": 5},   # every sweep of every stage runs
     "analysis": {"renyi": [1, 2]},
     # checkpoints inside sweeps too, so that kills also resume from the middle of a sweep
-    "output": {"checkpoint_seconds": 0.05},
+    "output": {"checkpoint_seconds": 0.01},
 }
 TABLES = ("entropies.csv", "sectors.csv", "moments.csv", "spectrum.csv", "sweeps.csv")
 TEMPORARY = re.compile(r"^\..+\.tmp-\d+$")
@@ -62,6 +63,15 @@ def _temporaries(out: Path) -> list[str]:
     return names
 
 
+def _stamp(path: Path):
+    """Identity of the file now at ``path`` (atomic replacement gives a new inode), or None."""
+    try:
+        st = path.stat()
+    except FileNotFoundError:
+        return None
+    return st.st_ino, st.st_mtime_ns
+
+
 def _wait_and_kill(proc: subprocess.Popen, out: Path, mode: str, rng: random.Random) -> bool:
     """Kill ``proc`` at a moment chosen by ``mode``; False if it finished first."""
     end = time.monotonic() + 60
@@ -75,6 +85,12 @@ def _wait_and_kill(proc: subprocess.Popen, out: Path, mode: str, rng: random.Ran
             seen.update(set(_temporaries(out)) - left_over)
             if len(seen) >= wanted:
                 break
+    elif mode == "sweep":          # after a few checkpoints of this process: most are taken inside sweeps
+        wanted, seen, last = rng.randint(2, 6), 0, _stamp(out / "state.h5")
+        while time.monotonic() < end and proc.poll() is None and seen < wanted:
+            now = _stamp(out / "state.h5")
+            seen, last = seen + (now != last and now is not None), now
+            time.sleep(0.001)
     else:                          # while plotting
         wanted = rng.randint(0, 5)
         while time.monotonic() < end and proc.poll() is None:
@@ -134,7 +150,7 @@ def test_runs_killed_at_random_moments_resume_to_the_uninterrupted_result(tmp_pa
     expected = json.loads((reference / "summary.json").read_text())
 
     rng = random.Random(20261204)
-    kills, campaign, modes = 0, 0, ("time", "write", "plots")
+    kills, campaign, modes = 0, 0, ("time", "write", "sweep", "plots")
     takeovers, mid_sweep, by_mode = 0, 0, dict.fromkeys(modes, 0)
     while kills < KILLS:
         campaign += 1
