@@ -5,11 +5,11 @@ from __future__ import annotations
 
 import numpy as np
 from hypothesis import HealthCheck, assume, given, settings
+from test_contract import TOL, contraction_pairs  # a sibling test module, imported by plain name
 
 from mps.blocks.chain import PlannedChain
 from mps.blocks.tensor import BlockTensor
 from mps.blocks.testing import assert_matches_dense
-from tests.blocks.test_contract import TOL, contraction_pairs
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
