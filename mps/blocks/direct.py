@@ -99,7 +99,10 @@ def nonzero_entries(const: BlockTensor) -> Entries:
     key = (const.legs, const.charge, const.dtype.str, const.data.tobytes())
     hit = _ENTRIES.get(key)
     if hit is not None:
-        _ENTRIES.move_to_end(key)
+        try:
+            _ENTRIES.move_to_end(key)
+        except KeyError:    # evicted meanwhile by another thread
+            pass
         return hit
     lay = const.layout
     pos = np.flatnonzero(const.data)
@@ -112,7 +115,10 @@ def nonzero_entries(const: BlockTensor) -> Entries:
         rel = rel // shapes[:, a]
     out = _ENTRIES[key] = Entries(lay.key_array[blk], offs, const.data[pos], {})
     if len(_ENTRIES) > _ENTRIES_KEPT:
-        _ENTRIES.popitem(last=False)
+        try:
+            _ENTRIES.popitem(last=False)
+        except KeyError:    # emptied meanwhile by another thread
+            pass
     return out
 
 

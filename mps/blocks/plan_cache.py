@@ -34,7 +34,10 @@ class PlanCache:
 
     def _evict(self) -> None:
         while self.nbytes > self.max_bytes and len(self.plans) > 1:
-            _, old = self.plans.popitem(last=False)
+            try:
+                _, old = self.plans.popitem(last=False)
+            except KeyError:    # emptied meanwhile by another thread
+                break
             self.nbytes -= self.weight(old)
 
     def __call__(self, *key):
@@ -46,7 +49,10 @@ class PlanCache:
         plan = self.plans.get(key)
         if plan is not None:
             self.hits += 1
-            self.plans.move_to_end(key)
+            try:
+                self.plans.move_to_end(key)
+            except KeyError:    # evicted meanwhile by another thread (Dask workers run points in threads)
+                pass
             return plan
         self.misses += 1
         t0 = time.perf_counter()

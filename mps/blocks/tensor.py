@@ -82,15 +82,20 @@ class _LayoutCache:
         key = (legs, charge)
         lay = self.items.get(key)
         if lay is None:
-            lay = self.put(_build_layout(legs, charge))
-        else:
+            return self.put(_build_layout(legs, charge))
+        try:
             self.items.move_to_end(key)
+        except KeyError:    # evicted meanwhile by another thread (Dask workers run points in threads)
+            pass
         return lay
 
     def put(self, lay: Layout) -> Layout:
         self.items[(lay.legs, lay.charge)] = lay
         if len(self.items) > self.size:
-            self.items.popitem(last=False)
+            try:
+                self.items.popitem(last=False)
+            except KeyError:    # emptied meanwhile by another thread
+                pass
         return lay
 
     def cache_clear(self) -> None:

@@ -233,3 +233,35 @@ def test_mismatched_structures_are_refused():
                 op(a, b)
     with pytest.raises(TypeError, match="scalar"):
         a * a
+
+
+def test_layout_cache_survives_threads_evicting_each_others_entries():
+    """Dask workers run scan points in threads of one process, which share the layout cache: with
+    a cache far smaller than the structures in use, two threads looking up and evicting the same
+    entries get correct layouts and no error (an entry evicted between a hit and its recency
+    update is not an error)."""
+    import threading
+
+    from mps.blocks.tensor import _build_layout, _LayoutCache
+
+    cache = _LayoutCache(2)
+    legs = [(Leg.make([0, 1, 2], [1, n, 2], 1), Leg.make([0, 1, 2], [2, 1, n], -1)) for n in range(1, 7)]
+    expected = [_build_layout(x, (0,)).offsets for x in legs]
+    errors = []
+
+    def work(shift):
+        try:
+            for i in range(3000):
+                k = (i + shift) % len(legs)
+                if not np.array_equal(cache(legs[k], (0,)).offsets, expected[k]):
+                    errors.append(f"wrong layout for structure {k}")
+        except Exception as exc:   # noqa: BLE001 - any error in a thread is the failure we look for
+            errors.append(repr(exc))
+
+    threads = [threading.Thread(target=work, args=(s,)) for s in (0, 3)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert errors == []
+    assert len(cache.items) <= 3
