@@ -41,8 +41,9 @@ class PlannedChain:
             ax_const = tuple(int(i) % const.ndim for i in ax_const)
             if (direct and run_first and 0 < k < len(steps) - 1 and self.plans[k - 1] is not None
                     and use_direct(const, ax_const)):
-                pending[k] = (legs, charge, ax_run, const, ax_const)
-                legs, charge = direct_legs(legs, charge, ax_run, const, ax_const)
+                out = direct_legs(legs, charge, ax_run, const, ax_const)
+                pending[k] = (legs, charge, ax_run, const, ax_const, out)
+                legs, charge = out
                 self.plans.append(None)
                 self.constants.append(None)
                 self.first.append(True)
@@ -59,9 +60,9 @@ class PlannedChain:
             legs = tuple(legs[p] for p in out_perm)
         self.out_legs, self.out_charge = legs, charge
         self.running = [None if p is None else (p.place_a if f else p.place_b) for p, f in zip(self.plans, self.first)]
-        for k, (x_legs, x_charge, ax_run, const, ax_const) in pending.items():
+        for k, (x_legs, x_charge, ax_run, const, ax_const, out) in pending.items():
             self.directs[k] = plan_direct_step(x_legs, x_charge, ax_run, const, ax_const,
-                                               self.plans[k - 1].place_o, self.running[k + 1])
+                                               self.plans[k - 1].place_o, self.running[k + 1], out)
         self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants if c is not None],
                                     *[d.values.dtype for d in self.directs.values()])
 
@@ -130,14 +131,15 @@ plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)
 entries and the two placements (which the cached step keeps alive, so their ids stay theirs)."""
 
 
-def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src: Placement, dst: Placement):
+def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src: Placement, dst: Placement,
+                     out=None):
     """The direct step of ``const`` between two placements, cached. The placements fix both
     structures (they belong to cached plans of those structures) and the entries fix the
     constant, so their identities are the key; the cached step keeps all three alive, so an id
     never passes to another object while it is a key."""
     entries = nonzero_entries(const)
     key = (id(entries), ax_run, ax_const, id(src), id(dst))
-    return plan_direct_cached.lookup(key, x_legs, x_charge, ax_run, const, ax_const, src, dst)
+    return plan_direct_cached.lookup(key, x_legs, x_charge, ax_run, const, ax_const, src, dst, out)
 
 
 def planning_seconds() -> float:

@@ -150,11 +150,13 @@ def _by_contracted(entries: Entries, const: BlockTensor, axes_c: tuple[int, ...]
     return hit
 
 
-def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place, dst_place) -> DirectStep:
+def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place, dst_place,
+                out=None) -> DirectStep:
     """Tasks of X (legs ``x_legs``, held in ``src_place``: a placement of the previous product)
     contracted over ``axes_x`` with ``const`` over ``axes_c``, written into ``dst_place`` (the
-    next product's packing of the result)."""
-    out_legs, out_charge = direct_legs(x_legs, x_charge, axes_x, const, axes_c)
+    next product's packing of the result). ``out``: the result's legs and charge, if the caller
+    already has them from :func:`direct_legs`."""
+    out_legs, out_charge = out if out is not None else direct_legs(x_legs, x_charge, axes_x, const, axes_c)
     free_x = np.array([i for i in range(len(x_legs)) if i not in axes_x], dtype=np.int64)
     con_x = np.array(axes_x, dtype=np.int64)
     entries = nonzero_entries(const)
@@ -168,6 +170,16 @@ def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place,
 
 
 @njit(cache=True, nogil=True)
+def _sector_codes(keys, axes, radix):  # pragma: no cover - compiled
+    """Mixed-radix code of every row's sectors on ``axes``."""
+    out = np.zeros(keys.shape[0], np.int64)
+    for i in range(keys.shape[0]):
+        for k in range(len(axes)):
+            out[i] += keys[i, axes[k]] * radix[k]
+    return out
+
+
+@njit(cache=True, nogil=True)
 def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x, con_x,
                  e_keys, e_offs, free_c, con_c, con_radix, o_codes, o_radix,
                  o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # pragma: no cover - compiled
@@ -175,22 +187,15 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
     packed block of the result; entries come sorted by the code of their contracted sectors.
     Returns (entry of each task, the task rows of :class:`DirectStep`, its zero slabs)."""
     nb, r = x_shapes.shape
-    ne = e_keys.shape[0]
     nf, nk, ng = len(free_x), len(con_x), len(free_c)
-    e_code = np.empty(ne, np.int64)
-    for e in range(ne):
-        c = 0
-        for k in range(nk):
-            c += e_keys[e, con_c[k]] * con_radix[k]
-        e_code[e] = c
+    e_code = _sector_codes(e_keys, con_c, con_radix)
+    b_code = _sector_codes(x_keys, con_x, con_radix)
+    first_entry = np.searchsorted(e_code, b_code, side="left")
+    end_entry = np.searchsorted(e_code, b_code, side="right")
     cap = 0
     for b in range(nb):
-        if src_dest[b] < 0:
-            continue
-        c = 0
-        for k in range(nk):
-            c += x_keys[b, con_x[k]] * con_radix[k]
-        cap += np.searchsorted(e_code, c, side="right") - np.searchsorted(e_code, c, side="left")
+        if src_dest[b] >= 0:
+            cap += end_entry[b] - first_entry[b]
     entry = np.empty(cap, np.int64)
     src = np.empty(cap, np.int64)
     dst = np.empty(cap, np.int64)
@@ -204,11 +209,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
     for b in range(nb):
         if src_dest[b] < 0:
             continue
-        c = 0
-        for k in range(nk):
-            c += x_keys[b, con_x[k]] * con_radix[k]
-        lo = np.searchsorted(e_code, c, side="left")
-        hi = np.searchsorted(e_code, c, side="right")
+        lo, hi = first_entry[b], end_entry[b]
         if lo == hi:
             continue
         weights(x_shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
