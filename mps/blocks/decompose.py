@@ -23,6 +23,7 @@ import scipy.linalg as sla
 from mps.blocks.charges import FusionMap, Leg, fuse
 from mps.blocks.kernels import leg_positions, pack_into, unpack_blocks
 from mps.blocks.plan_kernel import sector_places
+from mps.blocks.sector_map import map_sectors
 from mps.blocks.tensor import BlockTensor
 
 
@@ -179,10 +180,8 @@ def svd(t: BlockTensor, row_axes, col_axes, max_bond: int | None = None, discard
         min_value: float = 0.0) -> Truncation:
     """Truncated SVD of ``t`` between ``row_axes`` and ``col_axes``, ranked across all sectors."""
     mb = as_matrix(t, row_axes, col_axes)
-    us, ss, vs = [], [], []
-    for m in mb.mats:
-        u, s, vh = dense_svd(m)
-        us.append(u), ss.append(s), vs.append(vh)
+    factors = map_sectors(dense_svd, mb.mats, 48)
+    us, ss, vs = [f[0] for f in factors], [f[1] for f in factors], [f[2] for f in factors]
     total = float(sum(np.sum(s**2) for s in ss))
     kept = choose_kept(ss, max_bond, discard, min_value)
     dropped = total - float(sum(np.sum(s[:n]**2) for s, n in zip(ss, kept)))
@@ -194,17 +193,15 @@ def svd(t: BlockTensor, row_axes, col_axes, max_bond: int | None = None, discard
 def qr(t: BlockTensor, row_axes, col_axes) -> tuple[BlockTensor, BlockTensor]:
     """t = Q R with Q isometric (Q^dagger Q = 1) on the row legs; the bond carries the row charge."""
     mb = as_matrix(t, row_axes, col_axes)
-    qs, rs = zip(*[np.linalg.qr(m) for m in mb.mats]) if mb.mats else ((), ())
+    qs, rs = zip(*map_sectors(np.linalg.qr, mb.mats, 80)) if mb.mats else ((), ())
     return _factors(mb, t, list(qs), list(rs), [q.shape[1] for q in qs])
 
 
 def lq(t: BlockTensor, row_axes, col_axes) -> tuple[BlockTensor, BlockTensor]:
     """t = L Q with Q having orthonormal rows (Q Q^dagger = 1) on the column legs."""
     mb = as_matrix(t, row_axes, col_axes)
-    ls, qs = [], []
-    for m in mb.mats:
-        q, r = np.linalg.qr(m.conj().T)
-        ls.append(r.conj().T), qs.append(q.conj().T)
+    factors = map_sectors(lambda m: np.linalg.qr(m.conj().T), mb.mats, 80)
+    ls, qs = [r.conj().T for _, r in factors], [q.conj().T for q, _ in factors]
     return _factors(mb, t, ls, qs, [q.shape[0] for q in qs])
 
 
@@ -215,12 +212,9 @@ def eigh(t: BlockTensor, row_axes, col_axes) -> tuple[tuple[np.ndarray, ...], Bl
     t = V diag(w) V^dagger, and the bond leg.
     """
     mb = as_matrix(t, row_axes, col_axes)
-    ws, vs = [], []
-    for m in mb.mats:
-        if m.shape[0] != m.shape[1]:
-            raise ValueError("eigh needs square sector blocks (row legs dual to column legs)")
-        w, v = np.linalg.eigh(m)
-        ws.append(w), vs.append(v)
+    if any(m.shape[0] != m.shape[1] for m in mb.mats):
+        raise ValueError("eigh needs square sector blocks (row legs dual to column legs)")
+    ws, vs = zip(*map_sectors(np.linalg.eigh, mb.mats, 64)) if mb.mats else ((), ())
     kept = [len(w) for w in ws]
     v, _ = _factors(mb, t, vs, [v.conj().T for v in vs], kept)
     return tuple(w for w in ws if len(w)), v, v.legs[-1]
