@@ -11,7 +11,7 @@ import os
 
 # OpenBLAS keeps its worker threads spinning for 2^28 cycles (~0.1 s) after every BLAS call, so
 # on a small machine they take a core from the work that follows a matrix product: the per-sector
-# factorisations that run side by side (mps.blocks.sector_map) and the single-threaded kernels.
+# factorisations that run side by side (mps.blocks.cores) and the single-threaded kernels.
 # 2^14 cycles (a few microseconds) lets them sleep at once; it only takes effect when set before
 # numpy first loads OpenBLAS, and a value the user has set is kept.
 os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "14")

@@ -9,6 +9,8 @@ on the way (:mod:`mps.blocks.direct`).
 
 from __future__ import annotations
 
+from functools import cached_property
+
 import numpy as np
 
 from mps.blocks.contract import Placement, plan_contraction
@@ -82,8 +84,9 @@ class PlannedChain:
                   pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol)) for g in plan.large]
         return a, b, pc, plan.small if len(plan.small) else None, views
 
-    @property
+    @cached_property
     def flops(self) -> int:
+        """Real multiply-adds times two of one application."""
         return sum(p.flops for p in self.plans if p is not None) + sum(d.flops for d in self.directs.values())
 
     def __call__(self, data: np.ndarray) -> np.ndarray:

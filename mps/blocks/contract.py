@@ -107,7 +107,7 @@ class ContractionPlan:
         """The other groups, one BLAS call each."""
         return tuple(g for g in self.groups if g.nrow * g.nmid * g.ncol > SMALL_GEMM)
 
-    @property
+    @cached_property
     def flops(self) -> int:
         """Real multiply-adds times two, counted from the group shapes."""
         g = self.group_array

@@ -21,9 +21,9 @@ import numpy as np
 import scipy.linalg as sla
 
 from mps.blocks.charges import FusionMap, Leg, fuse
+from mps.blocks.cores import map_sectors
 from mps.blocks.kernels import leg_positions, pack_into, unpack_blocks
 from mps.blocks.plan_kernel import sector_places
-from mps.blocks.sector_map import map_sectors
 from mps.blocks.tensor import BlockTensor
 
 

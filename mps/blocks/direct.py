@@ -19,6 +19,7 @@ from __future__ import annotations
 
 from collections import OrderedDict
 from dataclasses import dataclass
+from functools import cached_property
 from typing import NamedTuple
 
 import numpy as np
@@ -57,7 +58,7 @@ class DirectStep:
         """Memory held by the task arrays (the plan cache's weight)."""
         return self.tasks.nbytes + self.values.nbytes + self.zeros.nbytes + 1024
 
-    @property
+    @cached_property
     def flops(self) -> int:
         """Real multiply-adds times two of one application."""
         nf = (self.tasks.shape[1] - 3) // 3

@@ -1,4 +1,4 @@
-"""Per-sector factorisations side by side (mps.blocks.sector_map) and the decompositions that use
+"""Per-sector factorisations side by side (mps.blocks.cores) and the decompositions that use
 them on sectors large enough to take that path, against numpy's dense LAPACK as the reference."""
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ from threadpoolctl import threadpool_limits
 
 from mps.blocks.charges import Leg
 from mps.blocks.contract import contract
+from mps.blocks.cores import blas_threads, map_sectors
 from mps.blocks.decompose import eigh, lq, qr, scale_leg, svd
-from mps.blocks.sector_map import blas_threads, map_sectors
 from mps.blocks.tensor import BlockTensor
 from mps.blocks.testing import assert_matches_dense, check_invariants
 

@@ -1,18 +1,18 @@
-"""Independent per-sector LAPACK factorisations run side by side, one core each.
+"""Per-sector factorisations side by side on the cores the BLAS may use.
 
 A block-diagonal matrix factorises sector by sector and the sectors do not talk to each other.
 OpenBLAS parallelises a single LAPACK factorisation poorly at the sector sizes of a sweep (half of
 the work is matrix-vector products): measured on the 2-core development machine, five 256 x 128
 sector blocks took 27 ms through gesdd with two BLAS threads, 16 ms with one, and 10 ms with one
 BLAS thread per block and the blocks shared out over two Python threads (numpy's LAPACK calls
-release the interpreter lock). Below ~48 rows or columns there is nothing to gain and the small
-calls stay on the caller's thread.
+release the interpreter lock). Below ~48 rows or columns there is
+nothing to gain and the small calls stay on the caller's thread.
 
 The BLAS thread count is a property of the whole process: while the blocks run side by side it is
 one, and it is restored afterwards. A lock makes those phases one at a time, so two threads that
 each factorise (Dask workers run scan points in threads) cannot restore each other's setting in
 the wrong order. With one BLAS thread configured (a scan worker's share of the cores) everything
-runs on the caller's thread as before.
+runs on the caller's thread.
 """
 
 from __future__ import annotations
@@ -67,3 +67,4 @@ def map_sectors(fn: Callable, mats: Sequence[np.ndarray], min_dim: int = 48) -> 
     for i, result in zip(order, done):
         out[i] = result
     return out
+
