@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from mps.blocks.charges import Leg, fuse
-from mps.blocks.decompose import _fill, as_matrix, choose_kept, dense_svd
+from mps.blocks.decompose import _fill, as_matrix, dense_svd, rank_kept
 from mps.blocks.tensor import BlockTensor
 
 
@@ -45,7 +45,7 @@ def widened_svd(t: BlockTensor, extra: BlockTensor, nshared: int, widen: str, ma
     ``widen="columns"``: t is a matrix with rows the shared legs, and new bond states come from
     the columns of ``extra``; ``"rows"``: t's columns are the shared legs and new states come from
     the rows of ``extra``. t's truncation ranks all sectors together
-    (:func:`mps.blocks.decompose.choose_kept`); at most :func:`grow` new states are added, within
+    (:func:`mps.blocks.decompose.rank_kept`); at most :func:`grow` new states are added, within
     ``max_bond``.
     """
     if widen not in ("columns", "rows"):
@@ -84,9 +84,7 @@ def widened_svd(t: BlockTensor, extra: BlockTensor, nshared: int, widen: str, ma
         own.append(mine if by_rows else mine.conj().T)
         more.append(other if by_rows else other.conj().T)
     us, ss, vs = zip(*[dense_svd(m) for m in own]) if own else ((), (), ())
-    kept = choose_kept(list(ss), max_bond, discard, min_value)
-    total = float(sum(np.sum(sv**2) for sv in ss))
-    dropped = total - float(sum(np.sum(sv[:k]**2) for sv, k in zip(ss, kept)))
+    kept, total, dropped = rank_kept(list(ss), max_bond, discard, min_value)
     added = _new_directions(us, kept, more, (max_bond or 2**62) - sum(kept), grow(sum(kept)))
     used = [i for i in range(len(keys)) if kept[i] + added[i].shape[1] > 0]
     sizes = [kept[i] + added[i].shape[1] for i in used]
