@@ -202,12 +202,13 @@ def build_mpo(space: LocalSpace, sites: int, terms: list[Term], check_hermitian:
         check_hermitian_sum(strings, dense, sites, d, k)
     bonds = []
     orders = []
+    same: dict[Leg, Leg] = {}     # one object per distinct bond leg: cache look-ups compare by identity
     for b in range(sites + 1):
         ch = np.zeros((len(states[b]), k), dtype=np.int64)
         for idx, c in states[b].values():
             ch[idx] = c
         leg, order = leg_from_states(ch, 1)
-        bonds.append(leg)
+        bonds.append(same.setdefault(leg, leg))
         orders.append(order)
     tensors = []
     for j in range(sites):
