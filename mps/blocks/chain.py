@@ -17,7 +17,7 @@ from mps.blocks.contract import Placement, plan_contraction
 from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
 from mps.blocks.kernels import pack_into, repack_blocks, small_products
 from mps.blocks.plan_cache import PlanCache
-from mps.blocks.tensor import BlockTensor, layout, permuted_blocks
+from mps.blocks.tensor import BlockTensor
 
 
 class PlannedChain:
@@ -34,7 +34,7 @@ class PlannedChain:
     Used for the effective Hamiltonian, whose Krylov iterations repeat the same chain many times.
     """
 
-    def __init__(self, template: BlockTensor, steps, direct: bool = True, out_perm=None):
+    def __init__(self, template: BlockTensor, steps, direct: bool = True):
         legs, charge = template.legs, template.charge
         self.plans, self.constants, self.first, self.directs = [], [], [], {}
         pending = {}
@@ -57,9 +57,6 @@ class PlannedChain:
             self.first.append(run_first)
             legs, charge = plan.out_legs, plan.out_charge
         self._out_place = self.plans[-1].place_o
-        if out_perm is not None and tuple(out_perm) != tuple(range(len(legs))):
-            self._out_place = _permuted(self._out_place, legs, charge, tuple(out_perm))
-            legs = tuple(legs[p] for p in out_perm)
         self.out_legs, self.out_charge = legs, charge
         self.running = [None if p is None else (p.place_a if f else p.place_b) for p, f in zip(self.plans, self.first)]
         for k, (x_legs, x_charge, ax_run, const, ax_const, out) in pending.items():
@@ -116,17 +113,6 @@ class PlannedChain:
             repack_blocks(products, o.shapes, o.rows, o.cols, o.dest, o.ld, n.rows, n.cols, n.dest, n.ld,
                           self._packed_in[k + 1])
         raise AssertionError("a planned chain ends with a planned contraction")
-
-
-def _permuted(place: Placement, legs, charge, perm) -> Placement:
-    """The placement of a result's blocks for the result with its legs permuted (leg i is leg
-    ``perm[i]``): unpacking through it writes the permuted tensor directly, no transpose after."""
-    dst = layout(tuple(legs[p] for p in perm), charge)
-    order = permuted_blocks(layout(legs, charge), dst, perm)
-    where = np.empty(len(perm), dtype=np.int64)
-    where[list(perm)] = np.arange(len(perm))
-    return Placement(dst.shape_array, dst.offsets, where[place.rows], where[place.cols], place.dest[order],
-                     place.ld[order], place.size, dst.key_array)
 
 
 plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)

@@ -75,17 +75,17 @@ def effective_problem(bond: int, rng: np.random.Generator):
     w1, w2 = mpo.tensors[2], mpo.tensors[3]
     left_bond = gaussian_leg(bond, 1, 1)
     right_bond = gaussian_leg(bond, 1, 1)
-    left = BlockTensor.random((left_bond, w1.legs[0].dual(), left_bond.dual()), None, rng=rng)
-    right = BlockTensor.random((right_bond.dual(), w2.legs[3].dual(), right_bond), None, rng=rng)
+    left = BlockTensor.random((left_bond, left_bond.dual(), w1.legs[0].dual()), None, rng=rng)
+    right = BlockTensor.random((right_bond.dual(), right_bond, w2.legs[3].dual()), None, rng=rng)
     theta = BlockTensor.random((left_bond, mpo.phys, mpo.phys, right_bond.dual()), None, rng=rng)
     return left, merge_pair(w1, w2), right, theta
 
 
 def dense_application(left, pair, right, theta) -> np.ndarray:
     """The same contraction order (environment, two-site tensor, MPO pair, environment) in numpy."""
-    x = np.tensordot(left, theta, axes=(2, 0))
+    x = np.tensordot(left, theta, axes=(1, 0))
     x = np.tensordot(x, pair, axes=((1, 2, 3), (0, 1, 2)))
-    return np.tensordot(x, right, axes=((1, 4), (2, 1)))
+    return np.tensordot(x, right, axes=((1, 4), (1, 2)))
 
 
 def best_time(fn, repeats: int) -> float:

@@ -1,8 +1,9 @@
 """Environments and the two-site effective Hamiltonian, never formed as a matrix.
 
-Left environment of site j (legs: bra bond, MPO bond, ket bond; flows +1, -1, -1) holds
+Left environment of site j (legs: bra bond, ket bond, MPO bond; flows +1, -1, -1) holds
 <psi_left| H_left |psi_left> for sites < j; the right environment (flows -1, +1, +1) the same for
-sites > j. The effective Hamiltonian acts on a two-site tensor theta (l, s1, s2, r) in the order
+sites > j. That leg order is the one in which an environment update's last product leaves its
+result, so an update writes the new environment without a transpose. The effective Hamiltonian acts on a two-site tensor theta (l, s1, s2, r) in the order
 left environment -> theta -> both MPO tensors -> right environment, which costs O(D^3 d^2 w) and
 never builds the D^2 d^2 x D^2 d^2 matrix (Schollwoeck, Ann. Phys. 326, 96 (2011), section 6).
 Every contraction's plan is cached per block structure, so the Krylov iterations reuse it.
@@ -21,14 +22,14 @@ from mps.blocks.tensor import BlockTensor
 
 def left_boundary(mpo_left: Leg, bond_left: Leg) -> BlockTensor:
     """Trivial environment left of site 0: the 'start' MPO state and the charge-0 bond."""
-    env = BlockTensor((bond_left, mpo_left.dual(), bond_left.dual()))
+    env = BlockTensor((bond_left, bond_left.dual(), mpo_left.dual()))
     env.data[:] = 1.0
     return env
 
 
 def right_boundary(mpo_right: Leg, bond_right: Leg) -> BlockTensor:
     """Trivial environment right of the last site: the 'done' MPO state and the target-charge bond."""
-    env = BlockTensor((bond_right, mpo_right.dual(), bond_right.dual()))
+    env = BlockTensor((bond_right, bond_right.dual(), mpo_right.dual()))
     env.data[:] = 1.0
     return env
 
@@ -37,20 +38,18 @@ def grow_left_counted(env: BlockTensor, a: BlockTensor, w: BlockTensor) -> tuple
     """Left environment of site j+1 from that of site j, the site tensor A_j and the MPO tensor
     W_j, with the FLOPs of its contractions. One planned chain: env -> A -> W (entry by entry)
     -> A*, so the intermediates move from one product's layout to the next once."""
-    chain = PlannedChain(a, [(env, (0,), (2,), False),          # (bra, w, s, r)
+    chain = PlannedChain(a, [(env, (0,), (1,), False),          # (bra, w, s, r)
                              (w, (1, 2), (0, 2), True),         # (bra, r, s', w')
-                             (a.conj(), (0, 2), (0, 1), False)],  # (r_bra, r, w')
-                         out_perm=(0, 2, 1))
+                             (a.conj(), (0, 2), (0, 1), False)])  # (r_bra, r, w')
     return BlockTensor(chain.out_legs, chain.out_charge, chain(a.data)), chain.flops
 
 
 def grow_right_counted(env: BlockTensor, b: BlockTensor, w: BlockTensor) -> tuple[BlockTensor, int]:
     """Right environment of site j-1 from that of site j, the site tensor B_j and W_j, with the
     FLOPs of its contractions (one planned chain, as :func:`grow_left_counted`)."""
-    chain = PlannedChain(b, [(env, (2,), (2,), True),           # (l, s, r_bra, w)
+    chain = PlannedChain(b, [(env, (2,), (1,), True),           # (l, s, r_bra, w)
                              (w, (1, 3), (2, 3), True),         # (l, r_bra, w, s')
-                             (b.conj(), (3, 1), (1, 2), False)],  # (l_bra, l, w)
-                         out_perm=(0, 2, 1))
+                             (b.conj(), (3, 1), (1, 2), False)])  # (l_bra, l, w)
     return BlockTensor(chain.out_legs, chain.out_charge, chain(b.data)), chain.flops
 
 
@@ -76,9 +75,9 @@ def merge_pair(w1: BlockTensor, w2: BlockTensor) -> BlockTensor:
 
 def apply_merged(left: BlockTensor, pair: BlockTensor, right: BlockTensor, theta: BlockTensor) -> BlockTensor:
     """H_eff theta with the merged MPO pair of :func:`merge_pair`."""
-    x = contract(left, theta, (2,), (0,))            # (l', a, s1, s2, r)
+    x = contract(left, theta, (1,), (0,))            # (l', a, s1, s2, r)
     x = contract(x, pair, (1, 2, 3), (0, 1, 2))      # (l', r, s1', s2', c)
-    return contract(x, right, (1, 4), (2, 1))        # (l', s1', s2', r')
+    return contract(x, right, (1, 4), (1, 2))        # (l', s1', s2', r')
 
 
 class LocalOperator:
@@ -110,7 +109,7 @@ def two_site_steps(left: BlockTensor, pair: BlockTensor, right: BlockTensor) -> 
     pair (:func:`merge_pair`, applied entry by entry), right environment. The last step
     contracts (MPO bond, r) in that order, so that r runs fastest in its packing, as it does in
     the first step's products: the MPO step then moves contiguous runs."""
-    return [(left, (0,), (2,), False), (pair, (1, 2, 3), (0, 1, 2), True), (right, (4, 1), (1, 2), True)]
+    return [(left, (0,), (1,), False), (pair, (1, 2, 3), (0, 1, 2), True), (right, (4, 1), (2, 1), True)]
 
 
 def two_site_operator(left: BlockTensor, pair: BlockTensor, right: BlockTensor, theta: BlockTensor) -> LocalOperator:
@@ -121,7 +120,7 @@ def two_site_operator(left: BlockTensor, pair: BlockTensor, right: BlockTensor, 
 def one_site_operator(left: BlockTensor, w: BlockTensor, right: BlockTensor, m: BlockTensor) -> LocalOperator:
     """H_eff on one-site tensors (l, s, r): left environment -> M -> W -> right environment,
     O(D^3 d w) per application instead of the two-site O(D^3 d^2 w)."""
-    return LocalOperator(m, [(left, (0,), (2,), False), (w, (1, 2), (0, 2), True), (right, (3, 1), (1, 2), True)])
+    return LocalOperator(m, [(left, (0,), (1,), False), (w, (1, 2), (0, 2), True), (right, (3, 1), (2, 1), True)])
 
 
 def expansion_right(left: BlockTensor, m: BlockTensor, w: BlockTensor) -> BlockTensor:
@@ -129,7 +128,7 @@ def expansion_right(left: BlockTensor, m: BlockTensor, w: BlockTensor) -> BlockT
     right-moving update widens M's right bond by (subspace expansion, Hubig, McCulloch,
     Schollwoeck and Wolf, PRB 91, 155115 (2015)). Without the projection most of P would repeat
     M (H psi ~ E psi near convergence) and the new directions' weight would be uncontrolled."""
-    x = contract(left, m, (2,), (0,))                # (bra, w, s, r)
+    x = contract(left, m, (1,), (0,))                # (bra, w, s, r)
     x = contract(x, w, (1, 2), (0, 2))               # (bra, r, s', w')
     p = x.transpose((0, 2, 1, 3))
     q, _ = qr(m, (0, 1), (2,))                       # orthonormal basis of M's columns
@@ -139,7 +138,7 @@ def expansion_right(left: BlockTensor, m: BlockTensor, w: BlockTensor) -> BlockT
 def expansion_left(m: BlockTensor, w: BlockTensor, right: BlockTensor) -> BlockTensor:
     """The part of P = M W R (legs l, w, s, r) outside M's row space: the directions a left-moving
     update widens M's left bond by."""
-    x = contract(m, right, (2,), (2,))               # (l, s, r_bra, w)
+    x = contract(m, right, (2,), (1,))               # (l, s, r_bra, w)
     x = contract(w, x, (2, 3), (1, 3))               # (w, s', l, r_bra)
     p = x.transpose((2, 0, 1, 3))
     _, q = lq(m, (0,), (1, 2))                       # orthonormal basis of M's rows

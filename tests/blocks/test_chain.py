@@ -33,8 +33,8 @@ def test_three_step_chain_matches_dense_effective_hamiltonian():
     from mps.pipeline.bench import dense_application, effective_problem
 
     left, pair, right, theta = effective_problem(12, np.random.default_rng(4))
-    chain = PlannedChain(theta, [(left, (0,), (2,), False), (pair, (1, 2, 3), (0, 1, 2), True),
-                                 (right, (1, 4), (2, 1), True)])
+    chain = PlannedChain(theta, [(left, (0,), (1,), False), (pair, (1, 2, 3), (0, 1, 2), True),
+                                 (right, (1, 4), (1, 2), True)])
     out = BlockTensor(chain.out_legs, chain.out_charge, chain(theta.data))
     expected = dense_application(*[t.to_dense() for t in (left, pair, right, theta)])
     assert_matches_dense(out, expected, atol=1e-10)
