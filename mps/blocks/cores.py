@@ -5,8 +5,8 @@ OpenBLAS parallelises a single LAPACK factorisation poorly at the sector sizes o
 the work is matrix-vector products): measured on the 2-core development machine, five 256 x 128
 sector blocks took 27 ms through gesdd with two BLAS threads, 16 ms with one, and 10 ms with one
 BLAS thread per block and the blocks shared out over two Python threads (numpy's LAPACK calls
-release the interpreter lock). Below ~48 rows or columns there is
-nothing to gain and the small calls stay on the caller's thread.
+release the interpreter lock). Below ~48 rows or columns there is nothing to gain and the small
+calls stay on the caller's thread (thresholds: :data:`mps.blocks.decompose.SIDE_BY_SIDE`).
 
 The BLAS thread count is a property of the whole process: while the blocks run side by side it is
 one, and it is restored afterwards. A lock makes those phases one at a time, so two threads that
