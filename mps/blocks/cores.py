@@ -12,11 +12,13 @@ The BLAS thread count is a property of the whole process: while the blocks run s
 one, and it is restored afterwards. A lock makes those phases one at a time, so two threads that
 each factorise (Dask workers run scan points in threads) cannot restore each other's setting in
 the wrong order. With one BLAS thread configured (a scan worker's share of the cores) everything
-runs on the caller's thread.
+runs on the caller's thread. A child made by ``fork`` has none of its parent's threads, so it
+starts its own pool and lock.
 """
 
 from __future__ import annotations
 
+import os
 import threading
 from concurrent.futures import ThreadPoolExecutor
 from functools import cache
@@ -37,6 +39,16 @@ def _blas():
 @cache
 def _workers(count: int) -> ThreadPoolExecutor:
     return ThreadPoolExecutor(count, thread_name_prefix="chargewise-sector")
+
+
+def _after_fork_in_child() -> None:
+    global _PHASE
+    _workers.cache_clear()
+    _PHASE = threading.Lock()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_after_fork_in_child)
 
 
 def blas_threads() -> int:

@@ -3,6 +3,8 @@ them on sectors large enough to take that path, against numpy's dense LAPACK as 
 
 from __future__ import annotations
 
+import multiprocessing
+import os
 import threading
 
 import numpy as np
@@ -119,3 +121,27 @@ def test_eigh_of_large_sectors_matches_the_dense_eigenvalues():
                                atol=TOL * np.abs(m).max())
     rebuilt = contract(scale_leg(v, 2, values), v.conj(), [2], [2])
     assert_matches_dense(rebuilt, h.to_dense(), atol=TOL * np.abs(m).max())
+
+
+def _factorise_in_child(queue) -> None:
+    mats = mixed_matrices(np.random.default_rng(6))
+    queue.put([float(r[1][0]) for r in map_sectors(svd_thread, mats)])
+
+
+@pytest.mark.skipif(not hasattr(os, "fork"), reason="no fork on this platform")
+def test_a_forked_child_factorises_with_its_own_threads():
+    """After the parent has used its pool, a child made by fork (which inherits none of the
+    pool's threads) still factorises, with the same results."""
+    parent = [float(r[1][0]) for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(6)))]
+    ctx = multiprocessing.get_context("fork")
+    queue = ctx.Queue()
+    child = ctx.Process(target=_factorise_in_child, args=(queue,))
+    child.start()
+    try:
+        got = queue.get(timeout=60)
+    finally:
+        child.join(timeout=60)
+        if child.is_alive():
+            child.kill()
+    np.testing.assert_allclose(got, parent, rtol=1e-12)
+    assert child.exitcode == 0
