@@ -61,7 +61,7 @@ def _work(m: np.ndarray) -> int:
     return rows * cols * min(rows, cols)
 
 
-def map_sectors(fn: Callable, mats: Sequence[np.ndarray], min_dim: int = 48) -> list:
+def map_sectors(fn: Callable, mats: Sequence[np.ndarray], min_dim: int) -> list:
     """``[fn(m) for m in mats]``, with the BLAS on one thread per block and the blocks shared out
     over the BLAS's cores (largest first) when some block has at least ``min_dim`` rows and
     columns; results in the order of ``mats``."""

@@ -108,7 +108,7 @@ def widened_svd(t: BlockTensor, extra: BlockTensor, nshared: int, widen: str, ma
         _fill(rest, range(len(own_t)), (len(own_t),), mt.rows, fuse((bond,), 1),
               [part_t[keys[used[k]]][0] for k in mine], [weights[k].conj().T for k in mine])
     values = tuple(ss[i][:kept[i]].copy() for i in used)
-    return Expansion(iso, rest, values, max(dropped, 0.0) / total)
+    return Expansion(iso, rest, values, dropped / total)
 
 
 def grow(kept: int) -> int:

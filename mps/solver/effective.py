@@ -3,9 +3,9 @@
 Left environment of site j (legs: bra bond, ket bond, MPO bond; flows +1, -1, -1) holds
 <psi_left| H_left |psi_left> for sites < j; the right environment (flows -1, +1, +1) the same for
 sites > j. That leg order is the one in which an environment update's last product leaves its
-result, so an update writes the new environment without a transpose. The effective Hamiltonian acts on a two-site tensor theta (l, s1, s2, r) in the order
-left environment -> theta -> both MPO tensors -> right environment, which costs O(D^3 d^2 w) and
-never builds the D^2 d^2 x D^2 d^2 matrix (Schollwoeck, Ann. Phys. 326, 96 (2011), section 6).
+result, so an update writes the new environment without a transpose. The effective Hamiltonian
+acts on a two-site tensor theta (l, s1, s2, r) in the order left environment -> theta -> both
+MPO tensors -> right environment, which costs O(D^3 d^2 w) and never builds the D^2 d^2 x D^2 d^2 matrix (Schollwoeck, Ann. Phys. 326, 96 (2011), section 6).
 Every contraction's plan is cached per block structure, so the Krylov iterations reuse it.
 """
 

@@ -28,7 +28,7 @@ class EigenResult:
 @njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
 def _extend(w, basis, m, beta):  # pragma: no cover - compiled
     """One Lanczos step on w = H v_m in place: alpha = Re <v_m, w>, the three-term recurrence
-    w -= alpha v_m + beta v_(m-1), then the projection of the rows basis[:m+1] out of w.
+    w -= alpha v_m + beta v_(m-1) (``beta`` = 0 at m = 0), then the projection of the rows basis[:m+1] out of w.
     Returns (alpha, ||w||).
 
     The projection is classical Gram-Schmidt, repeated once only when a pass cancelled more than
@@ -41,11 +41,10 @@ def _extend(w, basis, m, beta):  # pragma: no cover - compiled
     alpha = 0.0
     for i in range(n):
         alpha += (np.conj(basis[m, i]) * w[i]).real
-    b = beta if m else 0.0
-    prev = m - 1 if m else m
+    prev = max(m - 1, 0)
     norm2 = 0.0
     for i in range(n):
-        x = w[i] - alpha * basis[m, i] - b * basis[prev, i]
+        x = w[i] - alpha * basis[m, i] - beta * basis[prev, i]
         w[i] = x
         norm2 += x.real * x.real + x.imag * x.imag
     overlaps = np.zeros(m + 1, dtype=w.dtype)
@@ -110,8 +109,8 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
             if np.may_share_memory(w, basis) or w.dtype != basis.dtype:
                 w = w.astype(basis.dtype)       # the projection below works in place
             apps += 1
-            a, b = _extend(w, basis, m, beta[m - 1] if m else 0.0)
-            alpha[m], b = a, float(b)
+            alpha[m], b = _extend(w, basis, m, beta[m - 1] if m else 0.0)
+            b = float(b)
             evals, evecs = _tridiagonal_eigh(alpha[:m + 1], beta[:m])
             value = float(evals[0])
             resid = abs(b * evecs[-1, 0])

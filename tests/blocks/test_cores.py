@@ -14,11 +14,12 @@ from threadpoolctl import threadpool_limits
 from mps.blocks.charges import Leg
 from mps.blocks.contract import contract
 from mps.blocks.cores import blas_threads, map_sectors
-from mps.blocks.decompose import eigh, lq, qr, scale_leg, svd
+from mps.blocks.decompose import SIDE_BY_SIDE, eigh, lq, qr, scale_leg, svd
 from mps.blocks.tensor import BlockTensor
 from mps.blocks.testing import assert_matches_dense, check_invariants
 
 TOL = 1e-11
+SVD_SIDE = SIDE_BY_SIDE["svd"]
 
 
 def mixed_matrices(rng):
@@ -33,7 +34,7 @@ def svd_thread(m):
 
 def test_results_come_back_in_input_order_and_reconstruct():
     mats = mixed_matrices(np.random.default_rng(1))
-    for m, (u, s, vh, _) in zip(mats, map_sectors(svd_thread, mats)):
+    for m, (u, s, vh, _) in zip(mats, map_sectors(svd_thread, mats, SVD_SIDE)):
         assert u.shape[0] == m.shape[0] and vh.shape[1] == m.shape[1]
         np.testing.assert_allclose((u * s) @ vh, m, rtol=0, atol=TOL * max(1.0, s[0]))
         np.testing.assert_allclose(s, np.linalg.svd(m, compute_uv=False), rtol=0, atol=TOL * s[0])
@@ -42,20 +43,20 @@ def test_results_come_back_in_input_order_and_reconstruct():
 @pytest.mark.skipif(blas_threads() < 2, reason="the BLAS of this machine runs on one thread")
 def test_large_blocks_run_side_by_side_and_the_blas_threads_come_back():
     before = blas_threads()
-    names = {r[-1] for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(2)))}
+    names = {r[-1] for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(2)), SVD_SIDE)}
     assert any(name.startswith("chargewise-sector") for name in names)
     assert blas_threads() == before
 
 
 def test_small_blocks_stay_on_the_calling_thread():
     mats = [np.random.default_rng(3).standard_normal((20, 30)) for _ in range(4)]
-    names = {r[-1] for r in map_sectors(svd_thread, mats)}
+    names = {r[-1] for r in map_sectors(svd_thread, mats, SVD_SIDE)}
     assert names == {threading.current_thread().name}
 
 
 def test_one_blas_thread_means_no_side_by_side_work():
     with threadpool_limits(1, user_api="blas"):
-        names = {r[-1] for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(4)))}
+        names = {r[-1] for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(4)), SVD_SIDE)}
         assert blas_threads() == 1
     assert names == {threading.current_thread().name}
 
@@ -69,7 +70,7 @@ def test_a_failing_block_raises_and_restores_the_blas_threads():
         return m.sum()
 
     with pytest.raises(np.linalg.LinAlgError):
-        map_sectors(fails_on_wide, mixed_matrices(np.random.default_rng(5)))
+        map_sectors(fails_on_wide, mixed_matrices(np.random.default_rng(5)), SVD_SIDE)
     assert blas_threads() == before
 
 
@@ -125,14 +126,14 @@ def test_eigh_of_large_sectors_matches_the_dense_eigenvalues():
 
 def _factorise_in_child(queue) -> None:
     mats = mixed_matrices(np.random.default_rng(6))
-    queue.put([float(r[1][0]) for r in map_sectors(svd_thread, mats)])
+    queue.put([float(r[1][0]) for r in map_sectors(svd_thread, mats, SVD_SIDE)])
 
 
 @pytest.mark.skipif(not hasattr(os, "fork"), reason="no fork on this platform")
 def test_a_forked_child_factorises_with_its_own_threads():
     """After the parent has used its pool, a child made by fork (which inherits none of the
     pool's threads) still factorises, with the same results."""
-    parent = [float(r[1][0]) for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(6)))]
+    parent = [float(r[1][0]) for r in map_sectors(svd_thread, mixed_matrices(np.random.default_rng(6)), SVD_SIDE)]
     ctx = multiprocessing.get_context("fork")
     queue = ctx.Queue()
     child = ctx.Process(target=_factorise_in_child, args=(queue,))
