@@ -53,6 +53,16 @@ def _block_sums(shape, row_axes, col_axes, strides, rsum, csum):  # pragma: no c
 
 
 @njit(cache=True, nogil=True)
+def _is_run(csum, nc):  # pragma: no cover - compiled
+    """True when a block's columns are consecutive in its C-order data (csum = 0, 1, ...): a
+    row then moves as one slice, which the compiler vectorises, instead of entry by entry."""
+    for j in range(nc):
+        if csum[j] != j:
+            return False
+    return True
+
+
+@njit(cache=True, nogil=True)
 def _largest_block(offsets):  # pragma: no cover - compiled
     big = 1
     for b in range(len(offsets) - 1):
@@ -298,11 +308,17 @@ def pack_into(data, shapes, offsets, row_axes, col_axes, dest, ld, out):  # prag
         if dest[b] < 0:
             continue
         nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
+        run = _is_run(csum, nc)
         for i in range(nr):
             src = offsets[b] + rsum[i]
             dst = dest[b] + i * ld[b]
-            for j in range(nc):
-                out[dst + j] = data[src + csum[j]]
+            if run:
+                o, x = out[dst:dst + nc], data[src:src + nc]
+                for j in range(nc):
+                    o[j] = x[j]
+            else:
+                for j in range(nc):
+                    out[dst + j] = data[src + csum[j]]
     return out
 
 
@@ -322,11 +338,17 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
                 out[p] = 0
             continue
         nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
+        run = _is_run(csum, nc)
         for i in range(nr):
             src = offsets[b] + rsum[i]
             dst = dest[b] + i * ld[b]
-            for j in range(nc):
-                out[src + csum[j]] = packed[dst + j]
+            if run:
+                o, x = out[src:src + nc], packed[dst:dst + nc]
+                for j in range(nc):
+                    o[j] = x[j]
+            else:
+                for j in range(nc):
+                    out[src + csum[j]] = packed[dst + j]
     return out
 
 
@@ -371,10 +393,15 @@ def repack_blocks(src, shapes, src_rows, src_cols, src_dest, src_ld,
             count *= shapes[b, a]
         for a in range(r):
             idx[a] = 0
+        unit = wsl == 1 and wdl == 1    # slices: the compiler vectorises the copy
         for _ in range(count):
             if zero:
                 for t in range(nl):
                     out[pd + t * wdl] = 0
+            elif unit:
+                o, x = out[pd:pd + nl], src[ps:ps + nl]
+                for t in range(nl):
+                    o[t] = x[t]
             else:
                 for t in range(nl):
                     out[pd + t * wdl] = src[ps + t * wsl]
