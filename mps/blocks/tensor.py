@@ -222,9 +222,15 @@ class BlockTensor:
         return BlockTensor(self.legs, self.charge, self.data.astype(dtype))
 
     def conj(self) -> "BlockTensor":
-        """Complex conjugate: every flow reversed and the total charge negated (same blocks)."""
-        return BlockTensor(tuple(leg.dual() for leg in self.legs), tuple(-c for c in self.charge),
-                           self.data.conj())
+        """Complex conjugate: every flow reversed and the total charge negated (same blocks, in
+        the same order: the layout is carried over, not searched for again)."""
+        legs, charge = tuple(leg.dual() for leg in self.legs), tuple(-c for c in self.charge)
+        if (legs, charge) not in layout.items:
+            src = self.layout
+            charges, sizes, starts, flows = src.packed or pack_legs(self.legs)
+            layout.put(Layout(legs, charge, src.key_array, src.shape_array, src.offsets,
+                              (charges, sizes, starts, -flows)))
+        return BlockTensor(legs, charge, self.data.conj())
 
     def _check_same(self, other: "BlockTensor") -> None:
         if self.legs != other.legs or self.charge != other.charge:

@@ -10,7 +10,7 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from mps.blocks.charges import Leg
-from mps.blocks.tensor import BlockTensor
+from mps.blocks.tensor import BlockTensor, _build_layout
 from mps.blocks.testing import allowed_mask, assert_matches_dense, check_invariants, tensor_strategy
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -184,6 +184,12 @@ def test_conj_flips_flows_negates_charge_and_matches_dense(t):
     assert c.charge == tuple(-q for q in t.charge)
     assert all(a.is_dual_of(b) for a, b in zip(c.legs, t.legs))
     assert_matches_dense(c, np.conj(t.to_dense()), atol=0)
+    # the carried-over layout is the one a search for the conjugate's structure finds
+    fresh = _build_layout(c.legs, c.charge)
+    for name in ("key_array", "shape_array", "offsets"):
+        np.testing.assert_array_equal(getattr(c.layout, name), getattr(fresh, name))
+    for mine, searched in zip(c.layout.packed, fresh.packed):
+        np.testing.assert_array_equal(mine, searched)
 
 
 @FAST
