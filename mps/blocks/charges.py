@@ -176,6 +176,11 @@ class FusionMap:
         return self.codes, self.sector, self.offset, self.radix, self.fused.size_array
 
     @cached_property
+    def leg_sizes(self) -> tuple[np.ndarray, np.ndarray]:
+        """(sizes, starts) of the fused legs' sectors, packed (:func:`pack_legs`)."""
+        return pack_legs(self.legs)[1:3]
+
+    @cached_property
     def entries(self) -> dict[tuple[int, ...], tuple[int, int, tuple[int, ...]]]:
         sizes = [np.asarray(leg.sizes, dtype=np.int64) for leg in self.legs]
         shapes = np.stack([s[self.combos[:, i]] for i, s in enumerate(sizes)], axis=1) if self.legs else \

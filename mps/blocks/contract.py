@@ -29,8 +29,7 @@ SMALL_GEMM = 2048
 matmul call per group on the development machine lies between 12^3 and 16^3."""
 
 
-@dataclass(frozen=True)
-class _Group:
+class _Group(NamedTuple):
     """One GEMM: rows x mid times mid x cols, stored at these offsets of the packed buffers."""
 
     nrow: int
@@ -97,21 +96,24 @@ class ContractionPlan:
         return tuple(_Group(*g) for g in self.group_array.tolist())
 
     @cached_property
+    def _work(self) -> np.ndarray:
+        g = self.group_array
+        return g[:, 0] * g[:, 1] * g[:, 2]
+
+    @cached_property
     def small(self) -> np.ndarray:
         """Groups of at most ``SMALL_GEMM`` multiply-adds, multiplied by one compiled loop."""
-        g = self.group_array
-        return g[g[:, 0] * g[:, 1] * g[:, 2] <= SMALL_GEMM]
+        return self.group_array[self._work <= SMALL_GEMM]
 
     @cached_property
     def large(self) -> tuple[_Group, ...]:
         """The other groups, one BLAS call each."""
-        return tuple(g for g in self.groups if g.nrow * g.nmid * g.ncol > SMALL_GEMM)
+        return tuple(_Group(*g) for g in self.group_array[self._work > SMALL_GEMM].tolist())
 
     @cached_property
     def flops(self) -> int:
         """Real multiply-adds times two, counted from the group shapes."""
-        g = self.group_array
-        return 2 * int(np.sum(g[:, 0] * g[:, 1] * g[:, 2]))
+        return 2 * int(self._work.sum())
 
 
 def _fusion(legs: tuple[Leg, ...], k: int) -> FusionMap:

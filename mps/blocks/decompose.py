@@ -22,11 +22,12 @@ import numpy as np
 import scipy.linalg as sla
 from numba import njit
 
-from mps.blocks.charges import FusionMap, Leg, fuse
+from mps.blocks.charges import FusionMap, Leg, fuse, pack_legs
 from mps.blocks.cores import map_sectors
+from mps.blocks.factor_kernel import left_factor_blocks, right_factor_blocks
 from mps.blocks.kernels import leg_positions, pack_into, unpack_blocks
 from mps.blocks.plan_kernel import sector_places
-from mps.blocks.tensor import BlockTensor
+from mps.blocks.tensor import BlockTensor, Layout, layout
 
 SIDE_BY_SIDE = {"svd": 48, "qr": 80, "eigh": 64}
 """Smallest sector matrix (rows and columns) for which the sector factorisations run side by side
@@ -116,17 +117,40 @@ def _bond_leg(mb: MatrixBlocks, kept: list[int], flow: int) -> tuple[Leg, list[i
 
 
 def _factors(mb: MatrixBlocks, t: BlockTensor, lefts, rights, kept) -> tuple[BlockTensor, BlockTensor]:
-    """Assemble left factor (row legs + bond) and right factor (bond + column legs)."""
+    """Assemble left factor (row legs + bond) and right factor (bond + column legs): layouts and
+    data of both in one compiled pass each (:mod:`mps.blocks.factor_kernel`)."""
     bond, used = _bond_leg(mb, kept, -1)
     dtype = np.result_type(*[m.dtype for m in lefts], *[m.dtype for m in rights])
-    nr = len(mb.row_axes)
-    left = BlockTensor(tuple(t.legs[i] for i in mb.row_axes) + (bond,), None, dtype=dtype)
-    right = BlockTensor((bond.dual(),) + tuple(t.legs[i] for i in mb.col_axes), t.charge, dtype=dtype)
-    _fill(left, range(nr), (nr,), mb.rows, fuse((bond,), 1), [mb.sectors[i][0] for i in used],
-          [np.asarray(lefts[i][:, :kept[i]], dtype=dtype) for i in used])
-    _fill(right, (0,), range(1, len(mb.col_axes) + 1), fuse((bond.dual(),), 1), mb.cols,
-          list(range(len(used))), [np.asarray(rights[i][:kept[i]], dtype=dtype) for i in used])
+    counts = np.array([kept[i] for i in used], dtype=np.int64)
+    bond_of = np.full(mb.rows.fused.nsec, -1, dtype=np.int64)
+    bond_of[[mb.sectors[i][0] for i in used]] = np.arange(len(used))
+    col_of_bond = np.array([mb.sectors[i][1] for i in used], dtype=np.int64)
+    rows, cols = mb.rows, mb.cols
+    left = _assembled(rows.legs + (bond,), (0,) * bond.nq, left_factor_blocks(
+        rows.combos, rows.sector, rows.offset, *rows.leg_sizes, bond_of, counts,
+        *_flat([lefts[i] for i in used], dtype)))
+    right = _assembled((bond.dual(),) + cols.legs, t.charge, right_factor_blocks(
+        cols.combos, cols.sector, cols.offset, *cols.leg_sizes, col_of_bond, counts,
+        *_flat([rights[i] for i in used], dtype)))
     return left, right
+
+
+def _flat(mats, dtype) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Start and column count of every matrix in one C-order buffer, and the buffer."""
+    sizes = np.array([m.size for m in mats], dtype=np.int64)
+    start = np.zeros(len(mats), dtype=np.int64)
+    np.cumsum(sizes[:-1], out=start[1:])
+    buf = np.concatenate([np.ravel(m) for m in mats]).astype(dtype, copy=False)
+    return start, np.array([m.shape[1] for m in mats], dtype=np.int64), buf
+
+
+def _assembled(legs, charge, blocks) -> BlockTensor:
+    """A tensor from compiled (keys, shapes, offsets, data): the layout of its structure is put in
+    the layout cache unless already there (it is the same layout, found by a search)."""
+    keys, shapes, offsets, data = blocks
+    if (legs, charge) not in layout.items:
+        layout.put(Layout(legs, charge, keys, shapes, offsets, pack_legs(legs)))
+    return BlockTensor(legs, charge, data)
 
 
 @dataclass(frozen=True)

@@ -15,7 +15,7 @@ from hypothesis import strategies as st
 from mps.blocks.charges import Leg
 from mps.blocks.contract import contract
 from mps.blocks.decompose import choose_kept, eigh, lq, qr, scale_leg, svd
-from mps.blocks.tensor import BlockTensor
+from mps.blocks.tensor import BlockTensor, _build_layout, layout
 from mps.blocks.testing import assert_matches_dense, check_invariants, tensor_strategy
 
 FAST = settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -252,6 +252,27 @@ def test_eigh_refuses_non_square_sectors():
     t = BlockTensor.random((Leg.make([0], [2], 1), Leg.make([0], [3], -1)), (0,), rng=0)
     with pytest.raises(ValueError, match="square"):
         eigh(t, (0,), (1,))
+
+
+# --- the factors' layouts ------------------------------------------------------------------------
+
+@FAST
+@given(case=split_tensors(), truncate=st.booleans())
+def test_factor_layouts_are_those_a_search_finds(case, truncate):
+    """The factors' layouts are assembled with their data, not searched for
+    (:mod:`mps.blocks.factor_kernel`): with the layout cache empty they must be exactly the
+    allowed blocks of their structures, in the same order."""
+    t, rows, cols = case
+    for factors in (lambda: (lambda tr: (tr.u, tr.vh))(svd(t, rows, cols, max_bond=2 if truncate else None)),
+                    lambda: qr(t, rows, cols), lambda: lq(t, rows, cols)):
+        layout.cache_clear()
+        for f in factors():
+            check_invariants(f)
+            searched = _build_layout(f.legs, f.charge)
+            for name in ("key_array", "shape_array", "offsets"):
+                np.testing.assert_array_equal(getattr(f.layout, name), getattr(searched, name))
+            for mine, found in zip(f.layout.packed, searched.packed):
+                np.testing.assert_array_equal(mine, found)
 
 
 # --- scale_leg ----------------------------------------------------------------------------------
