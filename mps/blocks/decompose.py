@@ -15,6 +15,7 @@ scipy's divide-and-conquer-free SVD is only the fallback when gesdd fails to con
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import NamedTuple
 
@@ -116,22 +117,26 @@ def _bond_leg(mb: MatrixBlocks, kept: list[int], flow: int) -> tuple[Leg, list[i
     return Leg(tuple(charges), tuple(kept[i] for i in used), flow), used
 
 
-def _factors(mb: MatrixBlocks, t: BlockTensor, lefts, rights, kept) -> tuple[BlockTensor, BlockTensor]:
+def _factors(mb: MatrixBlocks, t: BlockTensor, lefts, rights, kept, weights=None,
+             side: str = "left") -> tuple[BlockTensor, BlockTensor]:
     """Assemble left factor (row legs + bond) and right factor (bond + column legs): layouts and
-    data of both in one compiled pass each (:mod:`mps.blocks.factor_kernel`)."""
+    data of both in one compiled pass each (:mod:`mps.blocks.factor_kernel`). ``weights``: one
+    array per kept sector (in bond order), multiplied along the bond into the factor on ``side``."""
     bond, used = _bond_leg(mb, kept, -1)
     dtype = np.result_type(*[m.dtype for m in lefts], *[m.dtype for m in rights])
     counts = np.array([kept[i] for i in used], dtype=np.int64)
+    ones = np.ones(int(counts.sum()))
+    scaled = np.concatenate(weights) if weights is not None else ones
     bond_of = np.full(mb.rows.fused.nsec, -1, dtype=np.int64)
     bond_of[[mb.sectors[i][0] for i in used]] = np.arange(len(used))
     col_of_bond = np.array([mb.sectors[i][1] for i in used], dtype=np.int64)
     rows, cols = mb.rows, mb.cols
     left = _assembled(rows.legs + (bond,), (0,) * bond.nq, left_factor_blocks(
         rows.combos, rows.sector, rows.offset, *rows.leg_sizes, bond_of, counts,
-        *_flat([lefts[i] for i in used], dtype)))
+        scaled if side == "left" else ones, *_flat([lefts[i] for i in used], dtype)))
     right = _assembled((bond.dual(),) + cols.legs, t.charge, right_factor_blocks(
         cols.combos, cols.sector, cols.offset, *cols.leg_sizes, col_of_bond, counts,
-        *_flat([rights[i] for i in used], dtype)))
+        scaled if side == "right" else ones, *_flat([rights[i] for i in used], dtype)))
     return left, right
 
 
@@ -249,14 +254,24 @@ def dense_svd(m: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def svd(t: BlockTensor, row_axes, col_axes, max_bond: int | None = None, discard: float = 0.0,
-        min_value: float = 0.0) -> Truncation:
-    """Truncated SVD of ``t`` between ``row_axes`` and ``col_axes``, ranked across all sectors."""
+        min_value: float = 0.0, absorb: str | None = None) -> Truncation:
+    """Truncated SVD of ``t`` between ``row_axes`` and ``col_axes``, ranked across all sectors.
+
+    ``absorb`` "left" or "right": the kept values are normalised (sum of squares 1: the Schmidt
+    values of a normalised state) and multiplied along the bond into that factor as it is
+    assembled, so ``u`` or ``vh`` is no longer isometric; ``values`` are the normalised ones.
+    """
+    if absorb not in (None, "left", "right"):
+        raise ValueError(f"absorb must be None, 'left' or 'right', not {absorb!r}")
     mb = as_matrix(t, row_axes, col_axes)
     factors = map_sectors(dense_svd, mb.mats, SIDE_BY_SIDE["svd"])
     us, ss, vs = [f[0] for f in factors], [f[1] for f in factors], [f[2] for f in factors]
     kept, total, dropped = rank_kept(ss, max_bond, discard, min_value)
-    u, vh = _factors(mb, t, us, vs, kept)
     values = tuple(s[:n].copy() for s, n in zip(ss, kept) if n > 0)
+    if absorb is not None:
+        norm = math.sqrt(sum(float(np.dot(v, v)) for v in values))
+        values = tuple(v / norm for v in values)
+    u, vh = _factors(mb, t, us, vs, kept, values if absorb else None, absorb or "left")
     return Truncation(u, values, vh, dropped / total, total)
 
 

@@ -27,7 +27,15 @@ def _combo_size(combos, i, sizes, starts):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True)
-def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, start, ld, mats):  # pragma: no cover
+def _firsts(kept):  # pragma: no cover - compiled
+    out = np.zeros(len(kept), np.int64)
+    for b in range(1, len(kept)):
+        out[b] = out[b - 1] + kept[b - 1]
+    return out
+
+
+@njit(cache=True, nogil=True)
+def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, weight, start, ld, mats):  # pragma: no cover
     """(keys, shapes, offsets, data) of the left factor (row legs..., bond).
 
     combos/sector/offset: the row fusion (:class:`mps.blocks.charges.FusionMap`); sizes/starts:
@@ -46,6 +54,7 @@ def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, sta
     shapes = np.empty((count, r + 1), np.int64)
     offsets = np.zeros(count + 1, np.int64)
     data = np.empty(total, mats.dtype)
+    first = _firsts(kept)
     blk, pos = 0, 0
     for i in range(n):
         b = bond_of[sector[i]]
@@ -56,11 +65,12 @@ def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, sta
             shapes[blk, a] = sizes[starts[a] + combos[i, a]]
         keys[blk, r], shapes[blk, r] = b, kept[b]
         k = kept[b]
+        w = weight[first[b]:first[b] + k]
         for row in range(_combo_size(combos, i, sizes, starts)):
             src = start[b] + (offset[i] + row) * ld[b]
             out, x = data[pos:pos + k], mats[src:src + k]
             for t in range(k):
-                out[t] = x[t]
+                out[t] = x[t] * w[t]
             pos += k
         blk += 1
         offsets[blk] = pos
@@ -68,12 +78,13 @@ def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, sta
 
 
 @njit(cache=True, nogil=True)
-def right_factor_blocks(combos, sector, offset, sizes, starts, col_of_bond, kept, start, ld, mats):  # pragma: no cover
+def right_factor_blocks(combos, sector, offset, sizes, starts, col_of_bond, kept, weight, start, ld, mats):  # pragma: no cover
     """(keys, shapes, offsets, data) of the right factor (bond, column legs...).
 
     combos/sector/offset: the column fusion; col_of_bond[b]: the fused column sector paired with
     bond sector b; kept[b]: its dimension; the right matrix of bond sector b starts at
-    mats[start[b]] with ld[b] columns (C order).
+    mats[start[b]] with ld[b] columns (C order); its row t is multiplied by weight[w0 + t], w0
+    the sum of kept[:b].
     """
     n, r = combos.shape
     order = np.argsort(sector, kind="mergesort")     # grouped by fused sector, C order inside
@@ -90,6 +101,7 @@ def right_factor_blocks(combos, sector, offset, sizes, starts, col_of_bond, kept
     shapes = np.empty((count, r + 1), np.int64)
     offsets = np.zeros(count + 1, np.int64)
     data = np.empty(total, mats.dtype)
+    first = _firsts(kept)
     blk, pos = 0, 0
     for b in range(nb):
         for j in range(lo[b], hi[b]):
@@ -101,9 +113,9 @@ def right_factor_blocks(combos, sector, offset, sizes, starts, col_of_bond, kept
             width = _combo_size(combos, i, sizes, starts)
             for t in range(kept[b]):
                 src = start[b] + t * ld[b] + offset[i]
-                out, x = data[pos:pos + width], mats[src:src + width]
+                out, x, w = data[pos:pos + width], mats[src:src + width], weight[first[b] + t]
                 for c in range(width):
-                    out[c] = x[c]
+                    out[c] = x[c] * w
                 pos += width
             blk += 1
             offsets[blk] = pos

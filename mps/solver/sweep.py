@@ -27,7 +27,7 @@ from typing import Callable, Iterator
 import numpy as np
 
 from mps.blocks.contract import contract, plan_contraction, run_plan
-from mps.blocks.decompose import scale_leg, svd
+from mps.blocks.decompose import svd
 from mps.blocks.expand import widened_svd
 from mps.blocks.tensor import BlockTensor
 from mps.chain.mpo import Mpo
@@ -208,7 +208,7 @@ class SectorSweeper:
         return env
 
     # ------------------------------------------------------------------ one bond
-    def _optimize(self, j: int, stage: Stage, tol: float):
+    def _optimize(self, j: int, stage: Stage, tol: float, rightward: bool):
         ts, ws = self.state.tensors, self.mpo.tensors
         plan = plan_contraction(ts[j].legs, ts[j].charge, (2,), ts[j + 1].legs, ts[j + 1].charge, (0,))
         theta = run_plan(plan, ts[j], ts[j + 1])
@@ -217,9 +217,11 @@ class SectorSweeper:
             self._pairs[j] = merge_pair(ws[j], ws[j + 1])
         op = two_site_operator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
         energy, theta = self._ground_state(op, theta, tol)
+        # the normalised Schmidt values go into the factor the centre moves to
         cut = svd(_admix(theta, stage.admix, self.rng), (0, 1), (2, 3), max_bond=stage.bond,
-                  discard=self.settings.discard, min_value=1e-15)
-        return energy, cut, self._record(j + 1, cut.bond.charges, cut.values)
+                  discard=self.settings.discard, min_value=1e-15, absorb="right" if rightward else "left")
+        self._record(j + 1, cut.bond.charges, cut.values, normalized=True)
+        return energy, cut
 
     def _ground_state(self, op, start: BlockTensor, tol: float) -> tuple[float, BlockTensor]:
         """Lowest eigenpair of the local effective Hamiltonian, warm-started from ``start``."""
@@ -231,13 +233,15 @@ class SectorSweeper:
             raise NumericalError(f"the eigensolver returned a non-finite value ({res.value})")
         return res.value, op.wrap(res.vector)
 
-    def _record(self, bond: int, charges, values) -> tuple[np.ndarray, ...]:
-        """Normalise a bond's kept singular values (one array per sector of ``charges``), store
-        the non-empty sectors as the bond's Schmidt values and return the normalised arrays."""
+    def _record(self, bond: int, charges, values, normalized: bool = False) -> tuple[np.ndarray, ...]:
+        """Normalise a bond's kept singular values (one array per sector of ``charges``; already
+        done if ``normalized``), store the non-empty sectors as the bond's Schmidt values and
+        return the normalised arrays."""
         norm = math.sqrt(sum(float(np.sum(v**2)) for v in values))
         if not (math.isfinite(norm) and norm > 0):
             raise NumericalError(f"the truncation at bond {bond} gave Schmidt values of norm {norm}")
-        values = tuple(v / norm for v in values)
+        if not normalized:
+            values = tuple(v / norm for v in values)
         self.state.spectra[bond] = BondSpectrum(tuple(q for q, v in zip(charges, values) if v.size),
                                                 tuple(v for v in values if v.size))
         return values
@@ -245,15 +249,12 @@ class SectorSweeper:
     def _pair_step(self, j: int, rightward: bool, stage: Stage, tol: float) -> tuple[float, float]:
         """Two-site update of sites j, j+1; the centre moves to j+1 (rightward) or j."""
         ts = self.state.tensors
-        energy, cut, values = self._optimize(j, stage, tol)
+        energy, cut = self._optimize(j, stage, tol, rightward)
+        ts[j], ts[j + 1] = cut.u, cut.vh
         if rightward:
-            ts[j] = cut.u
-            ts[j + 1] = scale_leg(cut.vh, 0, values)
             self.lefts[j + 1] = self._grow_left(j)
             self.state.center = j + 1
         else:
-            ts[j + 1] = cut.vh
-            ts[j] = scale_leg(cut.u, 2, values)
             self.rights[j] = self._grow_right(j + 1)
             self.state.center = j
         return energy, cut.discarded

@@ -254,6 +254,33 @@ def test_eigh_refuses_non_square_sectors():
         eigh(t, (0,), (1,))
 
 
+@FAST
+@given(case=split_tensors(), side=st.sampled_from(["left", "right"]))
+def test_absorbed_values_are_normalised_and_multiplied_into_one_factor(case, side):
+    """The form a sweep keeps: the normalised Schmidt values inside the factor the centre moves
+    to, the other factor isometric."""
+    t, rows, cols = case
+    plain, tr = svd(t, rows, cols), svd(t, rows, cols, absorb=side)
+    norm = np.sqrt(sum(float(np.sum(v**2)) for v in plain.values))
+    for v, w in zip(plain.values, tr.values):
+        np.testing.assert_allclose(w, v / norm, rtol=1e-14, atol=0)
+    assert abs(sum(float(np.sum(v**2)) for v in tr.values) - 1) <= TOL
+    rebuilt = contract(tr.u, tr.vh, [tr.u.ndim - 1], [0])
+    assert_matches_dense(rebuilt, grouped(t, rows, cols) / norm, atol=TOL)
+    iso = tr.vh if side == "left" else tr.u
+    if side == "right":
+        assert_matches_dense(left_gram(iso, tuple(range(len(rows)))), identity_on(tr.bond), atol=TOL)
+    else:
+        axes = tuple(range(1, iso.ndim))
+        assert_matches_dense(contract(iso, iso.conj(), axes, axes), identity_on(tr.bond), atol=TOL)
+
+
+def test_absorb_names_a_side():
+    t = BlockTensor.random((Leg.make([0], [2], 1), Leg.make([0], [3], -1)), (0,), rng=0)
+    with pytest.raises(ValueError, match="absorb"):
+        svd(t, (0,), (1,), absorb="both")
+
+
 # --- the factors' layouts ------------------------------------------------------------------------
 
 @FAST
