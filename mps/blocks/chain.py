@@ -13,9 +13,9 @@ from functools import cached_property
 
 import numpy as np
 
-from mps.blocks.contract import Placement, plan_contraction
+from mps.blocks.contract import SMALL_GEMM, Placement, plan_contraction
 from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
-from mps.blocks.kernels import pack_into, repack_blocks, small_products
+from mps.blocks.kernels import group_products, pack_into, repack_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.tensor import BlockTensor
 
@@ -64,6 +64,8 @@ class PlannedChain:
                                                self.plans[k - 1].place_o, self.running[k + 1], out)
         self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants if c is not None],
                                     *[d.values.dtype for d in self.directs.values()])
+        # compiled products take operands of one dtype
+        self.constants = [None if c is None else c.astype(self.dtype, copy=False) for c in self.constants]
 
         # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
         # every application; the matrix views of every large group are cut once too
@@ -72,14 +74,14 @@ class PlannedChain:
         self._bound = [None if p is None else self._bind(k) for k, p in enumerate(self.plans)]
 
     def _bind(self, k: int):
-        """Operands, product buffer, small groups and the (A, B, C) matrix views of every large
-        group of step k, on the chain's fixed buffers."""
+        """Operands, product buffer, the groups multiplied from compiled code and the (A, B, C)
+        matrix views of every large group of step k, on the chain's fixed buffers."""
         plan, x, pc = self.plans[k], self._packed_in[k], self._products[k]
         a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
         views = [(a[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
                   b[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
                   pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol)) for g in plan.large]
-        return a, b, pc, plan.small if len(plan.small) else None, views
+        return a, b, pc, plan.compiled if len(plan.compiled) else None, views
 
     @cached_property
     def flops(self) -> int:
@@ -97,10 +99,10 @@ class PlannedChain:
         for k, bound in enumerate(self._bound):
             if bound is None:          # done by the previous step, straight into step k + 1's packing
                 continue
-            a, b, products, small, views = bound
+            a, b, products, compiled, views = bound
             products[-1] = 0
-            if small is not None:
-                small_products(a, b, products, small)
+            if compiled is not None:
+                group_products(a, b, products, compiled, SMALL_GEMM)
             for va, vb, vc in views:
                 np.matmul(va, vb, out=vc)
             plan = self.plans[k]

@@ -269,14 +269,20 @@ def leg_positions(keys, shapes, offsets, axis, sector_start):  # pragma: no cove
 
 
 @njit(cache=True, nogil=True)
-def small_products(pa, pb, pc, groups):  # pragma: no cover - compiled
-    """C = A B for every group (nrow, nmid, ncol, a_start, b_start, c_start) of packed operands.
+def group_products(pa, pb, pc, groups, loop_limit):  # pragma: no cover - compiled
+    """C = A B for every group (nrow, nmid, ncol, a_start, b_start, c_start) of packed operands
+    (all three of one dtype).
 
-    A plain loop for groups too small for a BLAS call to pay off: from Python each call costs a
-    few microseconds of slicing and dispatch, more than the arithmetic of a 10 x 10 x 10 product.
+    Groups of at most ``loop_limit`` multiply-adds are a plain loop (a BLAS call does not pay off
+    for a 10 x 10 x 10 product), the others one BLAS call each from here (``np.dot``, scipy's
+    BLAS): from Python every product would cost a few microseconds of slicing and dispatch.
     """
     for g in range(groups.shape[0]):
         nr, nm, nc, sa, sb, sc = groups[g]
+        if nr * nm * nc > loop_limit:
+            np.dot(pa[sa:sa + nr * nm].reshape((nr, nm)), pb[sb:sb + nm * nc].reshape((nm, nc)),
+                   pc[sc:sc + nr * nc].reshape((nr, nc)))
+            continue
         for i in range(nr):
             row = sc + i * nc
             for j in range(nc):

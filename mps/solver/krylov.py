@@ -28,8 +28,9 @@ class EigenResult:
 @njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
 def _extend(w, basis, m, beta):  # pragma: no cover - compiled
     """One Lanczos step on w = H v_m in place: alpha = Re <v_m, w>, the three-term recurrence
-    w -= alpha v_m + beta v_(m-1) (``beta`` = 0 at m = 0), then the projection of the rows basis[:m+1] out of w.
-    Returns (alpha, ||w||).
+    w -= alpha v_m + beta v_(m-1) (``beta`` = 0 at m = 0), then the projection of the rows basis[:m+1] out of w;
+    w / ||w|| goes into basis[m + 1] when there is such a row (the next Lanczos vector, if the
+    caller goes on). Returns (alpha, ||w||).
 
     The projection is classical Gram-Schmidt, repeated once only when a pass cancelled more than
     1 - 1/sqrt(2) of the norm (the criterion of Daniel, Gragg, Kaufman and Stewart, Math. Comp.
@@ -65,7 +66,11 @@ def _extend(w, basis, m, beta):  # pragma: no cover - compiled
         if after2 >= norm2 / 2.0:
             break
         norm2 = after2
-    return alpha, np.sqrt(after2)
+    norm = np.sqrt(after2)
+    if m + 1 < basis.shape[0] and norm > 0:
+        for i in range(n):
+            basis[m + 1, i] = w[i] / norm
+    return alpha, norm
 
 
 def _tridiagonal_eigh(alpha: np.ndarray, beta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -110,14 +115,12 @@ def lowest_eigenpair(matvec: Callable[[np.ndarray], np.ndarray], start: np.ndarr
                 w = w.astype(basis.dtype)       # the projection below works in place
             apps += 1
             alpha[m], b = _extend(w, basis, m, beta[m - 1] if m else 0.0)
-            b = float(b)
             evals, evecs = _tridiagonal_eigh(alpha[:m + 1], beta[:m])
-            value = float(evals[0])
-            resid = abs(b * evecs[-1, 0])
+            value = evals[0].item()
+            resid = abs(b * evecs[-1, 0].item())
             if resid < tol or b < 1e-14 or m == m_max - 1 or m == n - 1:
                 break
             beta[m] = b
-            np.divide(w, b, out=basis[m + 1])
         coeffs = evecs[:, 0]
         x = coeffs @ basis[:len(coeffs)]
         x /= np.linalg.norm(x)

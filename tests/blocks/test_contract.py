@@ -8,8 +8,8 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from mps.blocks.charges import Leg
-from mps.blocks.contract import SMALL_GEMM, contract, plan_contraction, run_plan
-from mps.blocks.kernels import small_products
+from mps.blocks.contract import COMPILED_GEMM, SMALL_GEMM, contract, plan_contraction, run_plan
+from mps.blocks.kernels import group_products
 from mps.blocks.tensor import BlockTensor
 from mps.blocks.testing import assert_matches_dense, charge_pool_strategy, leg_strategy, total_charge_strategy
 
@@ -227,31 +227,35 @@ def test_named_structures_match_tensordot(name):
 # --- compiled group products ---------------------------------------------------------------------
 
 @FAST
-@given(shapes=st.lists(st.tuples(st.integers(0, 9), st.integers(0, 9), st.integers(0, 9)), min_size=1, max_size=5),
-       complex_a=st.booleans(), seed=st.integers(0, 2**32 - 1))
-def test_small_group_products_match_numpy_matmul(shapes, complex_a, seed):
+@given(shapes=st.lists(st.tuples(st.integers(0, 30), st.integers(0, 30), st.integers(0, 30)), min_size=1, max_size=5),
+       complex_=st.booleans(), loop_limit=st.sampled_from([0, 100, SMALL_GEMM, 10**6]),
+       seed=st.integers(0, 2**32 - 1))
+def test_compiled_group_products_match_numpy_matmul(shapes, complex_, loop_limit, seed):
+    """Loops below ``loop_limit`` multiply-adds, BLAS calls above, empty groups included."""
     rng = np.random.default_rng(seed)
     groups, pa, pb, pc = [], 0, 0, 0
     for nr, nm, nc in shapes:
         groups.append((nr, nm, nc, pa, pb, pc))
         pa, pb, pc = pa + nr * nm, pb + nm * nc, pc + nr * nc
-    a = rng.standard_normal(pa) + (1j * rng.standard_normal(pa) if complex_a else 0)
-    b = rng.standard_normal(pb)
+    a = rng.standard_normal(pa) + (1j * rng.standard_normal(pa) if complex_ else 0)
+    b = (rng.standard_normal(pb) + 0j) if complex_ else rng.standard_normal(pb)
     out = np.full(pc, np.nan, dtype=np.result_type(a, b))
-    small_products(a, b, out, np.array(groups, dtype=np.int64).reshape(-1, 6))
+    group_products(a, b, out, np.array(groups, dtype=np.int64).reshape(-1, 6), loop_limit)
     for nr, nm, nc, sa, sb, sc in groups:
         expected = a[sa:sa + nr * nm].reshape(nr, nm) @ b[sb:sb + nm * nc].reshape(nm, nc)
         np.testing.assert_allclose(out[sc:sc + nr * nc].reshape(nr, nc), expected, rtol=0, atol=1e-12)
 
 
 def test_contraction_with_small_and_large_groups_matches_tensordot():
-    """Sector sizes spread from 1 to 24, so some groups go to the compiled loop and some to BLAS."""
+    """Sector sizes spread from 1 to 80, so some groups go to the compiled loop, some to BLAS
+    from compiled code and some to numpy's matmul."""
     rng = np.random.default_rng(11)
-    bond = Leg.make([-2, -1, 0, 1, 2], [1, 6, 24, 6, 1], 1)
+    bond = Leg.make([-2, -1, 0, 1, 2], [1, 6, 80, 80, 1], 1)
     phys = Leg.make([-1, 1], [1, 1], 1)
     a = BlockTensor.random((bond, phys, bond.dual()), (0,), rng=rng)
     b = BlockTensor.random((bond, phys, bond.dual()), (0,), rng=rng)
     plan = plan_contraction(a.legs, a.charge, (2,), b.legs, b.charge, (0,))
-    assert len(plan.small) and len(plan.large)
-    assert all(g.nrow * g.nmid * g.ncol > SMALL_GEMM for g in plan.large)
+    work = plan.compiled[:, 0] * plan.compiled[:, 1] * plan.compiled[:, 2]
+    assert np.any(work <= SMALL_GEMM) and np.any(work > SMALL_GEMM) and len(plan.large)
+    assert all(g.nrow * g.nmid * g.ncol > COMPILED_GEMM for g in plan.large)
     check_against_tensordot(a, b, (2,), (0,))
