@@ -15,7 +15,8 @@ import numpy as np
 
 from mps.blocks.contract import SMALL_GEMM, Placement, plan_contraction
 from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
-from mps.blocks.kernels import group_products, pack_into, repack_blocks
+from mps.blocks.gemm_kernel import group_products
+from mps.blocks.kernels import pack_into, repack_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.tensor import BlockTensor
 

@@ -19,7 +19,8 @@ from typing import NamedTuple
 import numpy as np
 
 from mps.blocks.charges import _BIAS, _SHIFT, FusionMap, Leg, charge_bound, fuse
-from mps.blocks.kernels import group_products, pack_blocks, unpack_blocks
+from mps.blocks.gemm_kernel import group_products
+from mps.blocks.kernels import pack_blocks, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import plan_all, plan_places
 from mps.blocks.tensor import BlockTensor, Layout, layout

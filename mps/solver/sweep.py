@@ -115,9 +115,8 @@ class SweepRecord:
 
 @dataclass
 class Progress:
-    """Resumable position of a search: sweeps done, current stage and sweeps done in it, and for
-    a sweep stopped half way the bond steps already done in it (with their worst truncation,
-    last energy and time)."""
+    """Resumable position of a search: sweeps done, the stage and sweeps done in it, and for a
+    sweep stopped half way its bond steps done (worst truncation, last energy, time)."""
 
     sweep: int = 0
     stage: int = 0
@@ -132,8 +131,8 @@ class Progress:
 
 
 class NumericalError(ArithmeticError):
-    """A non-finite number in the eigensolver or the truncation: the state in memory is not
-    usable any more (the caller keeps its last checkpoint)."""
+    """A non-finite number in the eigensolver or the truncation: the state in memory is unusable
+    (the caller keeps its last checkpoint)."""
 
 
 def rise_allowance(energy: float, truncation: float, sites: int, energy_tol: float) -> float:
@@ -177,7 +176,7 @@ class SectorSweeper:
         self.state = state
         self.lefts: list[BlockTensor | None] = [None] * state.sites
         self.rights: list[BlockTensor | None] = [None] * state.sites
-        self._pairs: dict[int, BlockTensor] = {}
+        self._pairs: dict = {}      # merged MPO pairs by bond and by content
         self.flops = 0      # multiply-adds x 2 of the planned contractions run by the bond steps
         self.update = default_update(mpo.phys.dim) if settings.update == "auto" else settings.update
         self._last_spectra = None     # Schmidt values after the previous sweep (single-site convergence)
@@ -209,19 +208,26 @@ class SectorSweeper:
 
     # ------------------------------------------------------------------ one bond
     def _optimize(self, j: int, stage: Stage, tol: float, rightward: bool):
-        ts, ws = self.state.tensors, self.mpo.tensors
+        ts = self.state.tensors
         plan = plan_contraction(ts[j].legs, ts[j].charge, (2,), ts[j + 1].legs, ts[j + 1].charge, (0,))
         theta = run_plan(plan, ts[j], ts[j + 1])
         self.flops += plan.flops
-        if j not in self._pairs:
-            self._pairs[j] = merge_pair(ws[j], ws[j + 1])
-        op = two_site_operator(self.lefts[j], self._pairs[j], self.rights[j + 1], theta)
+        op = two_site_operator(self.lefts[j], self._pair(j), self.rights[j + 1], theta)
         energy, theta = self._ground_state(op, theta, tol)
         # the normalised Schmidt values go into the factor the centre moves to
         cut = svd(_admix(theta, stage.admix, self.rng), (0, 1), (2, 3), max_bond=stage.bond,
                   discard=self.settings.discard, min_value=1e-15, absorb="right" if rightward else "left")
         self._record(j + 1, cut.bond.charges, cut.values, normalized=True)
         return energy, cut
+
+    def _pair(self, j: int) -> BlockTensor:
+        """The merged MPO pair of sites j, j+1 (:func:`merge_pair`), built once per distinct pair
+        of tensors: the bulk of a uniform chain has one, shared by all its bonds."""
+        if j not in self._pairs:
+            w1, w2 = self.mpo.tensors[j], self.mpo.tensors[j + 1]
+            key = tuple((w.legs, w.charge, w.data.dtype.str, w.data.tobytes()) for w in (w1, w2))
+            self._pairs[j] = self._pairs.get(key) or self._pairs.setdefault(key, merge_pair(w1, w2))
+        return self._pairs[j]
 
     def _ground_state(self, op, start: BlockTensor, tol: float) -> tuple[float, BlockTensor]:
         """Lowest eigenpair of the local effective Hamiltonian, warm-started from ``start``."""
@@ -234,14 +240,12 @@ class SectorSweeper:
         return res.value, op.wrap(res.vector)
 
     def _record(self, bond: int, charges, values, normalized: bool = False) -> tuple[np.ndarray, ...]:
-        """Normalise a bond's kept singular values (one array per sector of ``charges``; already
-        done if ``normalized``), store the non-empty sectors as the bond's Schmidt values and
-        return the normalised arrays."""
+        """Normalise (unless ``normalized``) a bond's kept singular values, one array per sector
+        of ``charges``, store the non-empty sectors as its Schmidt values and return them."""
         norm = math.sqrt(sum(float(np.sum(v**2)) for v in values))
         if not (math.isfinite(norm) and norm > 0):
             raise NumericalError(f"the truncation at bond {bond} gave Schmidt values of norm {norm}")
-        if not normalized:
-            values = tuple(v / norm for v in values)
+        values = values if normalized else tuple(v / norm for v in values)
         self.state.spectra[bond] = BondSpectrum(tuple(q for q, v in zip(charges, values) if v.size),
                                                 tuple(v for v in values if v.size))
         return values

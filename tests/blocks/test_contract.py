@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 
 from mps.blocks.charges import Leg
 from mps.blocks.contract import COMPILED_GEMM, SMALL_GEMM, contract, plan_contraction, run_plan
-from mps.blocks.kernels import group_products
+from mps.blocks.gemm_kernel import group_products
 from mps.blocks.tensor import BlockTensor
 from mps.blocks.testing import assert_matches_dense, charge_pool_strategy, leg_strategy, total_charge_strategy
 
