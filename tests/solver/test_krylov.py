@@ -7,7 +7,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from mps.solver.krylov import _extend, lowest_eigenpair
+from mps.solver.krylov import _extend, _lowest_tridiagonal, lowest_eigenpair
 
 
 def hermitian(n: int, dtype, seed: int) -> np.ndarray:
@@ -55,3 +55,46 @@ def test_exhausted_krylov_space_stops_with_the_exact_answer():
     res = lowest_eigenpair(lambda x: h @ x, start, lanczos_vectors=5, tol=1e-12, max_restarts=0)
     assert abs(res.value + 2.0) <= 1e-12
     assert res.applications == 3
+
+
+@st.composite
+def tridiagonals(draw):
+    """Random, graded (entries over many decades) and nearly degenerate symmetric tridiagonals."""
+    k = draw(st.integers(1, 30))
+    rng = np.random.default_rng(draw(st.integers(0, 2**31)))
+    kind = draw(st.sampled_from(["random", "graded", "clustered", "lanczos-like"]))
+    a, b = rng.standard_normal(k), np.abs(rng.standard_normal(max(k - 1, 0))) + 1e-3
+    if kind == "graded":
+        a, b = a * 10.0 ** rng.uniform(-6, 6, k), b * 10.0 ** rng.uniform(-6, 6, max(k - 1, 0))
+    elif kind == "clustered":
+        a, b = np.full(k, -1.0) + 1e-9 * a, 1e-7 * b
+    elif kind == "lanczos-like":         # a converged Lanczos run: tiny last couplings
+        b = b * np.geomspace(1.0, 1e-12, max(k - 1, 0))
+    return a, b
+
+
+@settings(max_examples=200, deadline=None)
+@given(t=tridiagonals())
+def test_lowest_tridiagonal_pair_matches_lapack(t):
+    """Against scipy's eigh_tridiagonal (LAPACK dstemr/dstebz): the value to a few eps ||T||, a
+    residual of a few eps ||T||, and the vector itself where the gap to the next eigenvalue
+    leaves it well defined (error ~ eps ||T|| / gap: Golub and Van Loan, Matrix Computations,
+    section 8.1, from memory)."""
+    from scipy.linalg import eigh_tridiagonal
+
+    a, b = t
+    value, vec = _lowest_tridiagonal(a, b)
+    if len(a) == 1:
+        assert value == a[0] and vec.tolist() == [1.0]
+        return
+    dense = np.diag(a) + np.diag(b, 1) + np.diag(b, -1)
+    norm = np.abs(dense).sum(axis=1).max()
+    evals, evecs = eigh_tridiagonal(a, b)
+    eps = np.finfo(float).eps
+    assert abs(value - evals[0]) <= 8 * len(a) * eps * norm
+    assert abs(np.linalg.norm(vec) - 1) <= 1e-14
+    assert np.linalg.norm(dense @ vec - value * vec) <= 16 * len(a) * eps * norm
+    gap = evals[1] - evals[0]
+    if gap > 1e-6 * norm:
+        ref = evecs[:, 0] * np.sign(evecs[np.argmax(np.abs(evecs[:, 0])), 0])
+        assert np.abs(vec - ref).max() <= 1e3 * len(a) * eps * norm / gap
