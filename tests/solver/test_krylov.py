@@ -98,3 +98,9 @@ def test_lowest_tridiagonal_pair_matches_lapack(t):
     if gap > 1e-6 * norm:
         ref = evecs[:, 0] * np.sign(evecs[np.argmax(np.abs(evecs[:, 0])), 0])
         assert np.abs(vec - ref).max() <= 1e3 * len(a) * eps * norm / gap
+
+
+def test_a_non_finite_product_gives_a_nan_value_not_an_exception():
+    """The sweep turns a non-finite value into its NumericalError (with the bond step named)."""
+    res = lowest_eigenpair(lambda x: np.full_like(x, np.nan), np.ones(10), lanczos_vectors=4, tol=1e-12)
+    assert np.isnan(res.value) and res.applications == 1
