@@ -133,12 +133,38 @@ def _fusion(legs: tuple[Leg, ...], k: int) -> FusionMap:
     return FusionMap((), trivial, np.zeros((1, 0), dtype=np.int64), zero, zero, zero)
 
 
-def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
+class _Axes(NamedTuple):
+    """Index bookkeeping of a contraction, which depends only on the ranks and contracted axes:
+    free axes of A and B, and the row / middle / column axes and the result's row and column
+    axes as the arrays the compiled planner takes."""
+
+    free_a: tuple[int, ...]
+    free_b: tuple[int, ...]
+    rows_a: np.ndarray
+    mids_a: np.ndarray
+    mids_b: np.ndarray
+    cols_b: np.ndarray
+    rows_o: np.ndarray
+    cols_o: np.ndarray
+
+
+@lru_cache(maxsize=1024)
+def _axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ...]) -> _Axes:
     if len(axes_a) != len(axes_b):
         raise ValueError("contract needs the same number of axes on both tensors")
     if len(set(axes_a)) != len(axes_a) or len(set(axes_b)) != len(axes_b):
         raise ValueError("an axis may be contracted only once")
+    free_a = tuple(i for i in range(na) if i not in axes_a)
+    free_b = tuple(i for i in range(nb) if i not in axes_b)
+    nfree = len(free_a) + len(free_b)
+    return _Axes(free_a, free_b, _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b),
+                 _axes(tuple(range(len(free_a)))), _axes(tuple(range(len(free_a), nfree))))
+
+
+def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
     for i, j in zip(axes_a, axes_b):
+        if a_legs[i].__dict__.get("_dual") is b_legs[j]:
+            continue            # the linked dual (Leg.dual): nothing to compare
         if not a_legs[i].is_dual_of(b_legs[j]):
             raise ValueError(f"leg {i} of the first tensor does not match leg {j} of the second: "
                              "contracted legs need the same sectors and opposite flows")
@@ -152,14 +178,13 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     The fusion maps and layouts are cached per structure; the groups and the entry-by-entry
     maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_maps`).
     """
+    ax = _axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
     _check_pairs(a_legs, axes_a, b_legs, axes_b)
     k = a_legs[0].nq
-    free_a = tuple(i for i in range(len(a_legs)) if i not in axes_a)
-    free_b = tuple(i for i in range(len(b_legs)) if i not in axes_b)
+    free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
     lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
     out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
-    rows_a, mids_a, mids_b, cols_b = _axes(free_a), _axes(tuple(axes_a)), _axes(tuple(axes_b)), _axes(free_b)
     if out_legs and charge_bound(out_legs) + max(map(abs, out_charge)) < _BIAS:
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
         places, packed_o, keys_o, shapes_o, offs_o = plan_all(
@@ -182,10 +207,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     place_b = Placement(lay_b.shape_array, lay_b.offsets, mids_b, cols_b, dest_b, ld_b, pb, lay_b.key_array)
     place_o = None
     if out_legs:
-        na = len(free_a)
-        place_o = Placement(lay_o.shape_array, lay_o.offsets, _axes(tuple(range(na))),
-                            _axes(tuple(range(na, len(out_legs)))),
-                            dest_o, ld_o, pc, lay_o.key_array)
+        place_o = Placement(lay_o.shape_array, lay_o.offsets, ax.rows_o, ax.cols_o, dest_o, ld_o, pc, lay_o.key_array)
     return ContractionPlan(out_legs, out_charge, groups, pc, lay_o.size if out_legs else 1,
                            place_a, place_b, place_o)
 
