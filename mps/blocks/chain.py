@@ -81,7 +81,8 @@ class PlannedChain:
         a, b = (x, self.constants[k]) if self.first[k] else (self.constants[k], x)
         views = [(a[g.a_start:g.a_start + g.nrow * g.nmid].reshape(g.nrow, g.nmid),
                   b[g.b_start:g.b_start + g.nmid * g.ncol].reshape(g.nmid, g.ncol),
-                  pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol)) for g in plan.large]
+                  pc[g.c_start:g.c_start + g.nrow * g.ncol].reshape(g.nrow, g.ncol))
+                 for g in (plan.large if len(plan.large_array) else ())]
         return a, b, pc, plan.compiled if len(plan.compiled) else None, views
 
     @cached_property

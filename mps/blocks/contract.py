@@ -22,7 +22,7 @@ from mps.blocks.charges import _BIAS, _SHIFT, FusionMap, Leg, charge_bound, fuse
 from mps.blocks.gemm_kernel import group_products
 from mps.blocks.kernels import pack_blocks, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
-from mps.blocks.plan_kernel import plan_all, plan_places
+from mps.blocks.plan_kernel import plan_all, plan_places, split_groups
 from mps.blocks.tensor import BlockTensor, Layout, layout
 
 SMALL_GEMM = 2048
@@ -87,6 +87,9 @@ class ContractionPlan:
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]
     group_array: np.ndarray           # (ngroups, 6): the fields of :class:`_Group`
+    compiled: np.ndarray              # the groups of at most COMPILED_GEMM multiply-adds (one compiled call)
+    large_array: np.ndarray           # the others (one numpy matmul each: BLAS on all its threads)
+    flops: int                        # real multiply-adds times two, counted from the group shapes
     packed_size: int
     out_size: int
     place_a: Placement
@@ -96,7 +99,8 @@ class ContractionPlan:
     @property
     def nbytes(self) -> int:
         """Memory held by the plan's arrays (the cache's weight)."""
-        arrays = [self.group_array] + [getattr(p, f) for p in (self.place_a, self.place_b, self.place_o)
+        arrays = [self.group_array, self.compiled, self.large_array] + [
+            getattr(p, f) for p in (self.place_a, self.place_b, self.place_o)
                                        if p is not None for f in ("dest", "ld")]
         return sum(x.nbytes for x in arrays) + 1024
 
@@ -105,24 +109,9 @@ class ContractionPlan:
         return tuple(_Group(*g) for g in self.group_array.tolist())
 
     @cached_property
-    def _work(self) -> np.ndarray:
-        g = self.group_array
-        return g[:, 0] * g[:, 1] * g[:, 2]
-
-    @cached_property
-    def compiled(self) -> np.ndarray:
-        """Groups of at most ``COMPILED_GEMM`` multiply-adds, multiplied by one compiled call."""
-        return self.group_array[self._work <= COMPILED_GEMM]
-
-    @cached_property
     def large(self) -> tuple[_Group, ...]:
-        """The other groups, one numpy matmul each (BLAS on all its threads)."""
-        return tuple(_Group(*g) for g in self.group_array[self._work > COMPILED_GEMM].tolist())
-
-    @cached_property
-    def flops(self) -> int:
-        """Real multiply-adds times two, counted from the group shapes."""
-        return 2 * int(self._work.sum())
+        """The groups of more than ``COMPILED_GEMM`` multiply-adds, one numpy matmul each."""
+        return tuple(_Group(*g) for g in self.large_array.tolist())
 
 
 def _fusion(legs: tuple[Leg, ...], k: int) -> FusionMap:
@@ -187,9 +176,9 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
     if out_legs and charge_bound(out_legs) + max(map(abs, out_charge)) < _BIAS:
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
-        places, packed_o, keys_o, shapes_o, offs_o = plan_all(
+        places, split, packed_o, keys_o, shapes_o, offs_o = plan_all(
             lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
-            np.array(out_charge, dtype=np.int64), _SHIFT, _BIAS)
+            np.array(out_charge, dtype=np.int64), _SHIFT, _BIAS, COMPILED_GEMM)
         lay_o = layout.put(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
     else:
         # a scalar result, or charges too large (the layout raises the error)
@@ -199,6 +188,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
         lay_o = layout(out_legs, out_charge) if out_legs else None
         places = plan_places(_arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o),
                              len(free_a), fa.arrays, fm.arrays, fb.arrays)
+        split = split_groups(places[0], COMPILED_GEMM)
     groups, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = places
     if holes[0] or holes[1]:
         raise AssertionError("contraction plan left a hole in a group matrix")
@@ -208,8 +198,8 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     place_o = None
     if out_legs:
         place_o = Placement(lay_o.shape_array, lay_o.offsets, ax.rows_o, ax.cols_o, dest_o, ld_o, pc, lay_o.key_array)
-    return ContractionPlan(out_legs, out_charge, groups, pc, lay_o.size if out_legs else 1,
-                           place_a, place_b, place_o)
+    return ContractionPlan(out_legs, out_charge, groups, split[0], split[1], int(split[2]), pc,
+                           lay_o.size if out_legs else 1, place_a, place_b, place_o)
 
 
 _NO_BLOCKS = (np.zeros((0, 0), dtype=np.int64), np.zeros((0, 0), dtype=np.int64), np.zeros(1, dtype=np.int64))

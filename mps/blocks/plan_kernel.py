@@ -164,12 +164,20 @@ def _fusion_arrays(packed, shift, bias):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True)
+def split_groups(groups, limit):  # pragma: no cover - compiled
+    """(groups of at most ``limit`` multiply-adds, the others, 2 x all multiply-adds)."""
+    work = groups[:, 0] * groups[:, 1] * groups[:, 2]
+    return groups[work <= limit], groups[work > limit], 2 * work.sum()
+
+
+@njit(cache=True, nogil=True)
 def plan_all(packed_a, lay_a, packed_b, lay_b, free_a, axes_a, axes_b, free_b, out_charge,
-             shift, bias):  # pragma: no cover - compiled
+             shift, bias, limit):  # pragma: no cover - compiled
     """Everything :func:`plan_places` needs, computed here from the operands' packed legs and
     layouts: the three fusions (A's free legs, the contracted legs, B's free legs) and the
-    result's layout; returns plan_places' results followed by the result's packed legs and its
-    layout (keys, shapes, offsets). One compiled call instead of five with Python in between."""
+    result's layout; returns plan_places' results, its groups split at ``limit`` multiply-adds
+    (:func:`split_groups`), the result's packed legs and its layout (keys, shapes, offsets). One
+    compiled call instead of six with Python in between."""
     rows = select_legs(packed_a, free_a)
     cols = select_legs(packed_b, free_b)
     f_row = _fusion_arrays(rows, shift, bias)
@@ -179,7 +187,7 @@ def plan_all(packed_a, lay_a, packed_b, lay_b, free_a, axes_a, axes_b, free_b, o
     keys_o, shapes_o, offs_o = allowed_blocks(out[0], out[1], out[2], out[3], out_charge, shift, bias)
     res = plan_places(lay_a, free_a, axes_a, lay_b, axes_b, free_b, (keys_o, shapes_o, offs_o), len(free_a),
                       f_row, f_mid, f_col)
-    return res, out, keys_o, shapes_o, offs_o
+    return res, split_groups(res[0], limit), out, keys_o, shapes_o, offs_o
 
 
 @njit(cache=True, nogil=True)
