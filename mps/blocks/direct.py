@@ -19,7 +19,6 @@ from __future__ import annotations
 
 from collections import OrderedDict
 from dataclasses import dataclass
-from functools import cached_property
 from typing import NamedTuple
 
 import numpy as np
@@ -51,18 +50,13 @@ class DirectStep:
     tasks: np.ndarray
     values: np.ndarray
     zeros: np.ndarray
+    flops: int           # real multiply-adds times two of one application
     keep: tuple = ()     # the two placements and the constant's entries, alive for the cache key
 
     @property
     def nbytes(self) -> int:
         """Memory held by the task arrays (the plan cache's weight)."""
         return self.tasks.nbytes + self.values.nbytes + self.zeros.nbytes + 1024
-
-    @cached_property
-    def flops(self) -> int:
-        """Real multiply-adds times two of one application."""
-        nf = (self.tasks.shape[1] - 3) // 3
-        return 2 * int(np.prod(self.tasks[:, 3:3 + nf], axis=1).sum()) if len(self.tasks) else 0
 
     def __call__(self, src: np.ndarray, out: np.ndarray) -> np.ndarray:
         return direct_apply(src, out, self.tasks, self.values.astype(out.dtype, copy=False), self.zeros)
@@ -163,11 +157,11 @@ def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place,
     entries = nonzero_entries(const)
     free_c, con_c, con_radix, keys, offs, values = _by_contracted(entries, const, tuple(axes_c))
     out_radix = mixed_radix([leg.nsec for leg in out_legs])
-    entry, rows, zeros = direct_tasks(src_place.keys, src_place.shapes, src_place.rows, src_place.cols,
+    entry, rows, zeros, flops = direct_tasks(src_place.keys, src_place.shapes, src_place.rows, src_place.cols,
                                       src_place.dest, src_place.ld, free_x, con_x, keys, offs, free_c, con_c,
                                       con_radix, dst_place.keys @ out_radix, out_radix, dst_place.shapes,
                                       dst_place.rows, dst_place.cols, dst_place.dest, dst_place.ld)
-    return DirectStep(out_legs, out_charge, rows, values[entry], zeros, (src_place, dst_place, entries))
+    return DirectStep(out_legs, out_charge, rows, values[entry], zeros, int(flops), (src_place, dst_place, entries))
 
 
 @njit(cache=True, nogil=True)
@@ -186,7 +180,8 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
                  o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # pragma: no cover - compiled
     """Every (block of X, non-zero entry) pair that meets on the contracted sectors and lands in a
     packed block of the result; entries come sorted by the code of their contracted sectors.
-    Returns (entry of each task, the task rows of :class:`DirectStep`, its zero slabs)."""
+    Returns (entry of each task, the task rows of :class:`DirectStep`, its zero slabs, 2 x the
+    multiply-adds of one application)."""
     nb, r = x_shapes.shape
     nf, nk, ng = len(free_x), len(con_x), len(free_c)
     e_code = _sector_codes(e_keys, con_c, con_radix)
@@ -251,6 +246,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
     by_dst = np.argsort(dst[:t], kind="mergesort")
     order = by_dst[np.argsort(group[:t][by_dst], kind="mergesort")]
     tasks = np.empty((t, 3 + 3 * nf), np.int64)
+    flops = 0
     for n in range(t):
         i = order[n]
         tasks[n, 0], tasks[n, 1] = src[i], dst[i]
@@ -258,7 +254,12 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
         tasks[n, 3:3 + nf] = extent[i]
         tasks[n, 3 + nf:3 + 2 * nf] = src_step[i]
         tasks[n, 3 + 2 * nf:] = dst_step[i]
-    return entry[order], tasks, _unreached(np.sort(dst[:t]), nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld)
+        size = 2
+        for a in range(nf):
+            size *= extent[i, a]
+        flops += size
+    zeros = _unreached(np.sort(dst[:t]), nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld)
+    return entry[order], tasks, zeros, flops
 
 
 @njit(cache=True, nogil=True)
