@@ -20,7 +20,6 @@ import os
 os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "20")
 
 
-
 def _keep_freed_memory() -> None:
     """Let glibc keep freed arrays for reuse instead of handing them back to the kernel.
 

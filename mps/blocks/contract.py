@@ -30,7 +30,7 @@ SMALL_GEMM = 2048
 numpy matmul call per group on the development machine lies between 12^3 and 16^3."""
 
 COMPILED_GEMM = 64**3
-"""Largest group (multiply-adds) multiplied from compiled code (:func:`mps.blocks.kernels.
+"""Largest group (multiply-adds) multiplied from compiled code (:func:`mps.blocks.gemm_kernel.
 group_products`, one BLAS call each above ``SMALL_GEMM``); larger ones are one numpy matmul each.
 Up to 64^3 OpenBLAS runs a product on one thread anyway (its multithreading threshold), so the
 second BLAS library that compiled code calls (scipy's) never starts its threads, and the Python
@@ -86,9 +86,8 @@ class ContractionPlan:
 
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]
-    group_array: np.ndarray           # (ngroups, 6): the fields of :class:`_Group`
-    compiled: np.ndarray              # the groups of at most COMPILED_GEMM multiply-adds (one compiled call)
-    large_array: np.ndarray           # the others (one numpy matmul each: BLAS on all its threads)
+    compiled: np.ndarray              # (n, 6) the fields of :class:`_Group` of every group of at most
+    large_array: np.ndarray           # COMPILED_GEMM multiply-adds (one compiled call), and of the others
     flops: int                        # real multiply-adds times two, counted from the group shapes
     packed_size: int
     out_size: int
@@ -99,14 +98,15 @@ class ContractionPlan:
     @property
     def nbytes(self) -> int:
         """Memory held by the plan's arrays (the cache's weight)."""
-        arrays = [self.group_array, self.compiled, self.large_array] + [
+        arrays = [self.compiled, self.large_array] + [
             getattr(p, f) for p in (self.place_a, self.place_b, self.place_o)
                                        if p is not None for f in ("dest", "ld")]
         return sum(x.nbytes for x in arrays) + 1024
 
     @cached_property
     def groups(self) -> tuple[_Group, ...]:
-        return tuple(_Group(*g) for g in self.group_array.tolist())
+        """Every group, those multiplied from compiled code first."""
+        return tuple(_Group(*g) for g in self.compiled.tolist() + self.large_array.tolist())
 
     @cached_property
     def large(self) -> tuple[_Group, ...]:
@@ -165,7 +165,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B.
 
     The fusion maps and layouts are cached per structure; the groups and the entry-by-entry
-    maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_maps`).
+    maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_all`).
     """
     ax = _axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
     _check_pairs(a_legs, axes_a, b_legs, axes_b)
@@ -189,7 +189,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
         places = plan_places(_arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o),
                              len(free_a), fa.arrays, fm.arrays, fb.arrays)
         split = split_groups(places[0], COMPILED_GEMM)
-    groups, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = places
+    _, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = places
     if holes[0] or holes[1]:
         raise AssertionError("contraction plan left a hole in a group matrix")
     pa, pb, pc = sizes.tolist()
@@ -198,7 +198,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     place_o = None
     if out_legs:
         place_o = Placement(lay_o.shape_array, lay_o.offsets, ax.rows_o, ax.cols_o, dest_o, ld_o, pc, lay_o.key_array)
-    return ContractionPlan(out_legs, out_charge, groups, split[0], split[1], int(split[2]), pc,
+    return ContractionPlan(out_legs, out_charge, split[0], split[1], int(split[2]), pc,
                            lay_o.size if out_legs else 1, place_a, place_b, place_o)
 
 

@@ -27,6 +27,14 @@ def _combo_size(combos, i, sizes, starts):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True)
+def _put_block(keys, shapes, blk, at, combos, i, sizes, starts):  # pragma: no cover - compiled
+    """Write combination i's sectors and sizes into row ``blk`` of keys/shapes from column ``at``."""
+    for a in range(combos.shape[1]):
+        keys[blk, at + a] = combos[i, a]
+        shapes[blk, at + a] = sizes[starts[a] + combos[i, a]]
+
+
+@njit(cache=True, nogil=True)
 def _firsts(kept):  # pragma: no cover - compiled
     out = np.zeros(len(kept), np.int64)
     for b in range(1, len(kept)):
@@ -60,9 +68,7 @@ def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, wei
         b = bond_of[sector[i]]
         if b < 0:
             continue
-        for a in range(r):
-            keys[blk, a] = combos[i, a]
-            shapes[blk, a] = sizes[starts[a] + combos[i, a]]
+        _put_block(keys, shapes, blk, 0, combos, i, sizes, starts)
         keys[blk, r], shapes[blk, r] = b, kept[b]
         k = kept[b]
         w = weight[first[b]:first[b] + k]
@@ -107,9 +113,7 @@ def right_factor_blocks(combos, sector, offset, sizes, starts, col_of_bond, kept
         for j in range(lo[b], hi[b]):
             i = order[j]
             keys[blk, 0], shapes[blk, 0] = b, kept[b]
-            for a in range(r):
-                keys[blk, a + 1] = combos[i, a]
-                shapes[blk, a + 1] = sizes[starts[a] + combos[i, a]]
+            _put_block(keys, shapes, blk, 1, combos, i, sizes, starts)
             width = _combo_size(combos, i, sizes, starts)
             for t in range(kept[b]):
                 src = start[b] + t * ld[b] + offset[i]
