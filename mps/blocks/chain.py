@@ -13,6 +13,7 @@ from functools import cached_property
 
 import numpy as np
 
+from mps.blocks.chain_plan import plan_chain_of_three, plan_three_cached
 from mps.blocks.contract import SMALL_GEMM, Placement, plan_contraction
 from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
 from mps.blocks.gemm_kernel import group_products
@@ -35,34 +36,23 @@ class PlannedChain:
     Used for the effective Hamiltonian, whose Krylov iterations repeat the same chain many times.
     """
 
-    def __init__(self, template: BlockTensor, steps, direct: bool = True):
-        legs, charge = template.legs, template.charge
-        self.plans, self.constants, self.first, self.directs = [], [], [], {}
-        pending = {}
-        for k, (const, ax_run, ax_const, run_first) in enumerate(steps):
-            ax_run = tuple(int(i) % len(legs) for i in ax_run)
-            ax_const = tuple(int(i) % const.ndim for i in ax_const)
-            if (direct and run_first and 0 < k < len(steps) - 1 and self.plans[k - 1] is not None
-                    and use_direct(const, ax_const)):
-                out = direct_legs(legs, charge, ax_run, const, ax_const)
-                pending[k] = (legs, charge, ax_run, const, ax_const, out)
-                legs, charge = out
-                self.plans.append(None)
-                self.constants.append(None)
-                self.first.append(True)
-                continue
-            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
-                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
-            self.plans.append(plan)
-            self.constants.append((plan.place_b if run_first else plan.place_a).pack(const.data))
-            self.first.append(run_first)
-            legs, charge = plan.out_legs, plan.out_charge
+    def __init__(self, template: BlockTensor, steps, direct: bool = True, together: bool = True):
+        steps = _normalised(template, steps)
+        three = None
+        if direct and together and len(steps) == 3 and steps[1][3]:
+            entries = nonzero_entries(steps[1][0])
+            if use_direct(steps[1][0], steps[1][2], entries):
+                three = plan_chain_of_three(template, steps, entries)
+        if three:           # the usual chains: planned in one compiled call (mps.blocks.chain_plan)
+            self.plans, self.directs = [three.first, None, three.last], {1: three.direct}
+            self.first = [steps[0][3], True, steps[2][3]]
+        else:
+            self.plans, self.first, self.directs = self._plan_steps(template, steps, direct)
+        self.constants = [None if p is None else (p.place_b if f else p.place_a).pack(const.data)
+                          for p, f, (const, *_) in zip(self.plans, self.first, steps)]
         self._out_place = self.plans[-1].place_o
-        self.out_legs, self.out_charge = legs, charge
+        self.out_legs, self.out_charge = self.plans[-1].out_legs, self.plans[-1].out_charge
         self.running = [None if p is None else (p.place_a if f else p.place_b) for p, f in zip(self.plans, self.first)]
-        for k, (x_legs, x_charge, ax_run, const, ax_const, out) in pending.items():
-            self.directs[k] = plan_direct_step(x_legs, x_charge, ax_run, const, ax_const,
-                                               self.plans[k - 1].place_o, self.running[k + 1], out)
         self.dtype = np.result_type(template.dtype, *[c.dtype for c in self.constants if c is not None],
                                     *[d.values.dtype for d in self.directs.values()])
         # compiled products take operands of one dtype
@@ -73,6 +63,29 @@ class PlannedChain:
         self._packed_in = [None if p is None else np.empty(p.size, dtype=self.dtype) for p in self.running]
         self._products = [None if p is None else np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
         self._bound = [None if p is None else self._bind(k) for k, p in enumerate(self.plans)]
+
+    def _plan_steps(self, template: BlockTensor, steps, direct: bool):
+        """(plans, running first, direct steps) planned step by step."""
+        legs, charge = template.legs, template.charge
+        plans, first, directs, pending = [], [], {}, {}
+        for k, (const, ax_run, ax_const, run_first) in enumerate(steps):
+            if (direct and run_first and 0 < k < len(steps) - 1 and plans[k - 1] is not None
+                    and use_direct(const, ax_const)):
+                out = direct_legs(legs, charge, ax_run, const, ax_const)
+                pending[k] = (legs, charge, ax_run, const, ax_const, out)
+                legs, charge = out
+                plans.append(None)
+                first.append(True)
+                continue
+            plan = (plan_contraction(legs, charge, ax_run, const.legs, const.charge, ax_const) if run_first
+                    else plan_contraction(const.legs, const.charge, ax_const, legs, charge, ax_run))
+            plans.append(plan)
+            first.append(run_first)
+            legs, charge = plan.out_legs, plan.out_charge
+        for k, (x_legs, x_charge, ax_run, const, ax_const, out) in pending.items():
+            nxt = plans[k + 1].place_a if first[k + 1] else plans[k + 1].place_b
+            directs[k] = plan_direct_step(x_legs, x_charge, ax_run, const, ax_const, plans[k - 1].place_o, nxt, out)
+        return plans, first, directs
 
     def _bind(self, k: int):
         """Operands, product buffer, the groups multiplied from compiled code and the (A, B, C)
@@ -119,6 +132,18 @@ class PlannedChain:
         raise AssertionError("a planned chain ends with a planned contraction")
 
 
+def _normalised(template: BlockTensor, steps) -> list:
+    """Steps with every axis as a tuple of non-negative ints (the running tensor's rank changes
+    from step to step: each contraction leaves the free legs of both operands)."""
+    out, rank = [], template.ndim
+    for const, ax_run, ax_const, run_first in steps:
+        ax_run = tuple(int(i) % rank for i in ax_run)
+        ax_const = tuple(int(i) % const.ndim for i in ax_const)
+        out.append((const, ax_run, ax_const, bool(run_first)))
+        rank += const.ndim - 2 * len(ax_run)
+    return out
+
+
 plan_direct_cached = PlanCache(plan_direct, max_bytes=64 << 20)
 """Direct steps (:func:`mps.blocks.direct.plan_direct`), cached by structure, the constant's
 entries and the two placements (which the cached step keeps alive, so their ids stay theirs)."""
@@ -137,4 +162,4 @@ def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src
 
 def planning_seconds() -> float:
     """Seconds spent building contraction plans and direct steps in this process."""
-    return plan_contraction.build_seconds + plan_direct_cached.build_seconds
+    return plan_contraction.build_seconds + plan_direct_cached.build_seconds + plan_three_cached.build_seconds

@@ -22,7 +22,7 @@ from mps.blocks.charges import _BIAS, _SHIFT, FusionMap, Leg, charge_bound, fuse
 from mps.blocks.gemm_kernel import group_products
 from mps.blocks.kernels import pack_blocks, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
-from mps.blocks.plan_kernel import plan_all, plan_places, split_groups
+from mps.blocks.plan_kernel import plan_all, plan_arrays, plan_places
 from mps.blocks.tensor import BlockTensor, Layout, layout
 
 SMALL_GEMM = 2048
@@ -122,7 +122,7 @@ def _fusion(legs: tuple[Leg, ...], k: int) -> FusionMap:
     return FusionMap((), trivial, np.zeros((1, 0), dtype=np.int64), zero, zero, zero)
 
 
-class _Axes(NamedTuple):
+class Axes(NamedTuple):
     """Index bookkeeping of a contraction, which depends only on the ranks and contracted axes:
     free axes of A and B, and the row / middle / column axes and the result's row and column
     axes as the arrays the compiled planner takes."""
@@ -138,7 +138,7 @@ class _Axes(NamedTuple):
 
 
 @lru_cache(maxsize=1024)
-def _axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ...]) -> _Axes:
+def axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ...]) -> Axes:
     if len(axes_a) != len(axes_b):
         raise ValueError("contract needs the same number of axes on both tensors")
     if len(set(axes_a)) != len(axes_a) or len(set(axes_b)) != len(axes_b):
@@ -146,11 +146,11 @@ def _axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ..
     free_a = tuple(i for i in range(na) if i not in axes_a)
     free_b = tuple(i for i in range(nb) if i not in axes_b)
     nfree = len(free_a) + len(free_b)
-    return _Axes(free_a, free_b, _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b),
+    return Axes(free_a, free_b, _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b),
                  _axes(tuple(range(len(free_a)))), _axes(tuple(range(len(free_a), nfree))))
 
 
-def _check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
+def check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
     for i, j in zip(axes_a, axes_b):
         if a_legs[i].__dict__.get("_dual") is b_legs[j]:
             continue            # the linked dual (Leg.dual): nothing to compare
@@ -167,16 +167,16 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     The fusion maps and layouts are cached per structure; the groups and the entry-by-entry
     maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_all`).
     """
-    ax = _axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
-    _check_pairs(a_legs, axes_a, b_legs, axes_b)
+    ax = axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
+    check_pairs(a_legs, axes_a, b_legs, axes_b)
     k = a_legs[0].nq
     free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
     lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
     out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
     out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
-    if out_legs and charge_bound(out_legs) + max(map(abs, out_charge)) < _BIAS:
+    if out_legs and in_range(out_legs, out_charge):
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
-        places, split, packed_o, keys_o, shapes_o, offs_o = plan_all(
+        arrays, packed_o, keys_o, shapes_o, offs_o = plan_all(
             lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
             np.array(out_charge, dtype=np.int64), _SHIFT, _BIAS, COMPILED_GEMM)
         lay_o = layout.put(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
@@ -188,17 +188,28 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
         lay_o = layout(out_legs, out_charge) if out_legs else None
         places = plan_places(_arrays(lay_a), rows_a, mids_a, _arrays(lay_b), mids_b, cols_b, _arrays(lay_o),
                              len(free_a), fa.arrays, fm.arrays, fb.arrays)
-        split = split_groups(places[0], COMPILED_GEMM)
-    _, sizes, dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, holes = places
-    if holes[0] or holes[1]:
+        arrays = plan_arrays(places, COMPILED_GEMM)
+    return wrap_plan(arrays, ax, lay_a, lay_b, lay_o, out_legs, out_charge)
+
+
+def in_range(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> bool:
+    """Whether every combined charge of ``legs`` and ``charge`` fits the compiled charge keys."""
+    return charge_bound(legs) + max(map(abs, charge)) < _BIAS
+
+
+def wrap_plan(arrays, ax: Axes, lay_a: Layout, lay_b: Layout, lay_o: Layout | None,
+              out_legs: tuple[Leg, ...], out_charge: tuple[int, ...]) -> ContractionPlan:
+    """A :class:`ContractionPlan` from the compiled planner's arrays
+    (:func:`mps.blocks.plan_kernel.plan_arrays`) and the layouts of A, B and the result."""
+    dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, small, large, flops, pa, pb, pc, hole = arrays
+    if hole:
         raise AssertionError("contraction plan left a hole in a group matrix")
-    pa, pb, pc = sizes.tolist()
-    place_a = Placement(lay_a.shape_array, lay_a.offsets, rows_a, mids_a, dest_a, ld_a, pa, lay_a.key_array)
-    place_b = Placement(lay_b.shape_array, lay_b.offsets, mids_b, cols_b, dest_b, ld_b, pb, lay_b.key_array)
+    place_a = Placement(lay_a.shape_array, lay_a.offsets, ax.rows_a, ax.mids_a, dest_a, ld_a, pa, lay_a.key_array)
+    place_b = Placement(lay_b.shape_array, lay_b.offsets, ax.mids_b, ax.cols_b, dest_b, ld_b, pb, lay_b.key_array)
     place_o = None
     if out_legs:
         place_o = Placement(lay_o.shape_array, lay_o.offsets, ax.rows_o, ax.cols_o, dest_o, ld_o, pc, lay_o.key_array)
-    return ContractionPlan(out_legs, out_charge, split[0], split[1], int(split[2]), pc,
+    return ContractionPlan(out_legs, out_charge, small, large, int(flops), int(pc),
                            lay_o.size if out_legs else 1, place_a, place_b, place_o)
 
 

@@ -66,11 +66,10 @@ def direct_legs(x_legs: tuple[Leg, ...], x_charge: tuple[int, ...], axes_x: tupl
                 const: BlockTensor, axes_c: tuple[int, ...]) -> tuple[tuple[Leg, ...], tuple[int, ...]]:
     """Legs (free legs of X, then free legs of the constant) and charge of the result."""
     for i, j in zip(axes_x, axes_c):
-        if not x_legs[i].is_dual_of(const.legs[j]):
+        if x_legs[i].__dict__.get("_dual") is not const.legs[j] and not x_legs[i].is_dual_of(const.legs[j]):
             raise ValueError(f"leg {i} of the running tensor does not match leg {j} of the constant")
-    free_x = [i for i in range(len(x_legs)) if i not in axes_x]
-    free_c = [i for i in range(const.ndim) if i not in axes_c]
-    legs = tuple(x_legs[i] for i in free_x) + tuple(const.legs[i] for i in free_c)
+    legs = (tuple(x for i, x in enumerate(x_legs) if i not in axes_x)
+            + tuple(x for i, x in enumerate(const.legs) if i not in axes_c))
     return legs, tuple(int(a) + int(b) for a, b in zip(x_charge, const.charge))
 
 
@@ -117,9 +116,10 @@ def nonzero_entries(const: BlockTensor) -> Entries:
     return out
 
 
-def use_direct(const: BlockTensor, axes_c: tuple[int, ...]) -> bool:
-    """Whether to apply ``const`` entry by entry (:data:`DIRECT_REUSE`)."""
-    entries = nonzero_entries(const)
+def use_direct(const: BlockTensor, axes_c: tuple[int, ...], entries: Entries | None = None) -> bool:
+    """Whether to apply ``const`` entry by entry (:data:`DIRECT_REUSE`); ``entries``: its
+    :func:`nonzero_entries`, if the caller has them."""
+    entries = nonzero_entries(const) if entries is None else entries
     verdict = entries.verdicts.get(axes_c)
     if verdict is None:
         keys, offs = entries.keys, entries.offsets
@@ -129,7 +129,7 @@ def use_direct(const: BlockTensor, axes_c: tuple[int, ...]) -> bool:
     return verdict
 
 
-def _by_contracted(entries: Entries, const: BlockTensor, axes_c: tuple[int, ...]):
+def contracted_entries(entries: Entries, const: BlockTensor, axes_c: tuple[int, ...]):
     """The constant's side of every direct step over ``axes_c`` (cached in ``entries``): free and
     contracted axes, the mixed-radix multipliers of the contracted sectors, and the entries
     sorted by the code of their contracted sectors."""
@@ -155,7 +155,7 @@ def plan_direct(x_legs, x_charge, axes_x, const: BlockTensor, axes_c, src_place,
     free_x = np.array([i for i in range(len(x_legs)) if i not in axes_x], dtype=np.int64)
     con_x = np.array(axes_x, dtype=np.int64)
     entries = nonzero_entries(const)
-    free_c, con_c, con_radix, keys, offs, values = _by_contracted(entries, const, tuple(axes_c))
+    free_c, con_c, con_radix, keys, offs, values = contracted_entries(entries, const, tuple(axes_c))
     out_radix = mixed_radix([leg.nsec for leg in out_legs])
     entry, rows, zeros, flops = direct_tasks(src_place.keys, src_place.shapes, src_place.rows, src_place.cols,
                                       src_place.dest, src_place.ld, free_x, con_x, keys, offs, free_c, con_c,
@@ -244,7 +244,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
     # tasks of one pair of free-leg sectors together (their source and destination slabs fit in
     # cache together), and inside it by destination (the first task of a slab writes)
     by_dst = np.argsort(dst[:t], kind="mergesort")
-    order = by_dst[np.argsort(group[:t][by_dst], kind="mergesort")]
+    order = by_dst[np.argsort(group[by_dst], kind="mergesort")]
     tasks = np.empty((t, 3 + 3 * nf), np.int64)
     flops = 0
     for n in range(t):
@@ -258,18 +258,26 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
         for a in range(nf):
             size *= extent[i, a]
         flops += size
-    zeros = _unreached(np.sort(dst[:t]), nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld)
+    zeros = _unreached(dst[by_dst], nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld)
     return entry[order], tasks, zeros, flops
 
 
 @njit(cache=True, nogil=True)
 def _unreached(starts, nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # pragma: no cover - compiled
     """Slabs of the result no task writes (rows: start, extents, strides over the free legs of
-    X, the shortest stride last): they are zeroed before the tasks run."""
+    X, the shortest stride last): they are zeroed before the tasks run. ``starts``: the tasks'
+    destinations, sorted."""
     nb, r = o_shapes.shape
     wd = np.empty(r, np.int64)
-    out = np.empty((0, 1 + 2 * nf), np.int64)
-    rows = []
+    cap = 0
+    for bo in range(nb):
+        if dst_dest[bo] >= 0:
+            count = 1
+            for a in range(nf, r):
+                count *= o_shapes[bo, a]
+            cap += count
+    out = np.empty((cap, 1 + 2 * nf), np.int64)
+    n = 0
     for bo in range(nb):
         if dst_dest[bo] < 0:
             continue
@@ -277,6 +285,10 @@ def _unreached(starts, nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # p
         count = 1
         for a in range(nf, r):
             count *= o_shapes[bo, a]
+        inner = 0
+        for i in range(1, nf):
+            if wd[i] < wd[inner]:
+                inner = i
         for c in range(count):          # every combination of offsets on the constant's legs
             d, rest = dst_dest[bo], c
             for a in range(r - 1, nf - 1, -1):
@@ -285,24 +297,15 @@ def _unreached(starts, nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # p
             pos = np.searchsorted(starts, d)
             if pos < len(starts) and starts[pos] == d:
                 continue
-            row = np.empty(1 + 2 * nf, np.int64)
-            row[0] = d
-            inner = 0
-            for i in range(1, nf):
-                if wd[i] < wd[inner]:
-                    inner = i
+            out[n, 0] = d
             j = 0
             for i in range(nf):
                 if i != inner:
-                    row[1 + j], row[1 + nf + j] = o_shapes[bo, i], wd[i]
+                    out[n, 1 + j], out[n, 1 + nf + j] = o_shapes[bo, i], wd[i]
                     j += 1
-            row[nf], row[2 * nf] = o_shapes[bo, inner], wd[inner]
-            rows.append(row)
-    if rows:
-        out = np.empty((len(rows), 1 + 2 * nf), np.int64)
-        for n in range(len(rows)):
-            out[n] = rows[n]
-    return out
+            out[n, nf], out[n, 2 * nf] = o_shapes[bo, inner], wd[inner]
+            n += 1
+    return out[:n].copy()
 
 
 @njit(cache=True, nogil=True)

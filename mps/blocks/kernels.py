@@ -169,7 +169,9 @@ def allowed_blocks(charges, sizes, starts, flows, target, shift, bias):  # pragm
             for i in range(r - 1):
                 total += flows[i] * charges[starts[i] + digits[i], c]
             need[0, c] = flows[r - 1] * (target[c] - total)
-        key = charge_keys(need, shift, bias)[0]
+        key = 0
+        for c in range(k):
+            key = (key << shift) | (need[0, c] + bias)
         pos = np.searchsorted(last_keys, key)
         if pos < len(last_keys) and last_keys[pos] == key:
             digits[r - 1] = pos

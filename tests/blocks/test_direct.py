@@ -26,15 +26,17 @@ def _dense_ok(legs) -> bool:
 
 @st.composite
 def three_step_chains(draw):
-    """A running tensor T and three constants: A (first operand) contracts T's first leg, C (the
-    sparse middle constant) contracts 1-2 legs of the result, B contracts 1-2 legs of that.
-    Sparse C data (density 0.2 ... 1), real or complex, random total charges."""
+    """A running tensor T and three constants: A contracts T's first leg (as the first or the
+    second operand), C (the sparse middle constant) contracts 1-2 legs of the result, B contracts
+    1-2 legs of that (first or second operand). Sparse C data (density 0.2 ... 1), real or
+    complex, random total charges."""
     k = draw(st.sampled_from([1, 2]))
     pool = draw(charge_pool_strategy(k))
     leg = leg_strategy(k, pool=pool, max_sectors=3, max_size=3)
     t_legs = [draw(leg) for _ in range(draw(st.integers(2, 3)))]
     a_free = [draw(leg) for _ in range(draw(st.integers(1, 2)))]
-    x_legs = a_free + t_legs[1:]                                  # after step 0
+    first0, first2 = draw(st.booleans()), draw(st.booleans())
+    x_legs = t_legs[1:] + a_free if first0 else a_free + t_legs[1:]      # after step 0
     ncon = draw(st.integers(1, min(2, len(x_legs) - 1)))
     con = draw(st.permutations(range(len(x_legs))))[:ncon]
     c_free = [draw(leg) for _ in range(draw(st.integers(1, 2)))]
@@ -66,9 +68,9 @@ def three_step_chains(draw):
     t, a, c, b = tensors
     density = draw(st.sampled_from([0.2, 0.5, 1.0, 1.0]))
     c.data[np.random.default_rng(seeds[4]).random(c.data.size) >= density] = 0
-    steps = [(a, (0,), (len(a_legs) - 1,), False),
+    steps = [(a, (0,), (len(a_legs) - 1,), first0),
              (c, tuple(con), tuple(range(ncon)), True),
-             (b, tuple(b_con), tuple(range(nb)), True)]
+             (b, tuple(b_con), tuple(range(nb)), first2)]
     return t, steps
 
 

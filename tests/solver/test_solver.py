@@ -115,9 +115,10 @@ def test_reusing_contraction_plans_gives_bit_identical_sweeps(monkeypatch):
     """A plan is a pure function of the block structure, so a search that rebuilds every plan
     and every direct MPO step (caches that keep one of each) must give the same energies and
     tensors, bit for bit, as one that reuses them across bond steps and sweeps (issue
-    requirement; checked here directly). Direct steps are cached by the identities of their
-    placements and entries, the riskiest key in the engine, so they are rebuilt too."""
-    from mps.blocks.chain import plan_direct_cached
+    requirement; checked here directly). The plans of whole chains (effective Hamiltonian,
+    environment updates) are cached by the identity of their MPO entries, the riskiest key in
+    the engine, so they are rebuilt too."""
+    from mps.blocks.chain_plan import plan_three_cached
     from mps.blocks.contract import plan_contraction
 
     settings = SweepSettings((Stage(16, 3, 0.0),), discard=0.0, energy_tol=0.0)
@@ -127,7 +128,7 @@ def test_reusing_contraction_plans_gives_bit_identical_sweeps(monkeypatch):
         _, s = solve("xxz", 12, couplings, {"Sz": 0.0}, settings=settings, seed=8)
         return s
 
-    caches = (plan_contraction, plan_direct_cached)
+    caches = (plan_contraction, plan_three_cached)
     for c in caches:
         c.cache_clear()
     before = [c.cache_info() for c in caches]
