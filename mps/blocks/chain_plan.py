@@ -35,6 +35,7 @@ class ThreeSteps:
     first: ContractionPlan
     direct: DirectStep
     last: ContractionPlan
+    keep: tuple = ()     # the layouts and entries whose identities key the cache, kept alive
 
     @property
     def nbytes(self) -> int:
@@ -124,11 +125,11 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
         con_radix, _charge(charge1), lay_2.packed, _arrays(lay_2), f2, ax2[2:6], _charge(charge2),
         _SHIFT, _BIAS, COMPILED_GEMM)
     lay_o0, lay_1 = Layout(legs0, charge0, *lo0), Layout(legs1, charge1, *ld1)
-    lay_o2 = layout.put(Layout(legs2, charge2, *lo2, packed2))
+    lay_o2 = layout.offer(Layout(legs2, charge2, *lo2, packed2))
     plan0 = wrap_plan(arr0, ax0, *((lay_t, lay_0) if f0 else (lay_0, lay_t)), lay_o0, legs0, charge0)
     plan2 = wrap_plan(arr2, ax2, *((lay_1, lay_2) if f2 else (lay_2, lay_1)), lay_o2, legs2, charge2)
-    step = DirectStep(legs1, charge1, tasks, values[entry], zeros, int(flops), (entries,))
-    return ThreeSteps(plan0, step, plan2)
+    step = DirectStep(legs1, charge1, tasks, values[entry], zeros, int(flops))
+    return ThreeSteps(plan0, step, plan2, (lay_t, lay_0, lay_2, entries))
 
 
 def _arrays(lay: Layout):
@@ -147,16 +148,19 @@ class _Cache(PlanCache):
 
 plan_three_cached = _Cache(_build, max_bytes=256 << 20)
 """Plans of three-step chains (None: charges too large for the compiled keys), cached by the
-structures of the running tensor and constants 0 and 2, and by the entries of constant 1."""
+layouts of the running tensor and of constants 0 and 2 and by the entries of constant 1."""
 
 
 def plan_chain_of_three(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     """The plans of ``steps`` (constant, running axes, constant axes, running first; axes
     normalised) on ``template``'s structure, whose middle step (its constant's non-zero
     ``entries``, :func:`mps.blocks.direct.nonzero_entries`) is done entry by entry; None when a
-    combined charge could be too large for the compiled planner (plan step by step then). The
-    entries are part of the key by identity: the cached plans keep them alive."""
+    combined charge could be too large for the compiled planner (plan step by step then).
+
+    The key holds the identities of the three layouts (a layout is immutable and the layout
+    cache hands out one object per structure, so equal structures meet the same plans) and of
+    the entries; the cached plans keep all four alive, so an id cannot pass to another object
+    while it is a key. Hashing a few ints instead of a dozen legs."""
     (c0, r0, k0, f0), (c1, r1, k1, _), (c2, r2, k2, f2) = steps
-    key = (template.legs, template.charge, r0, c0.legs, c0.charge, k0, f0, id(entries), r1, k1,
-           c2.legs, c2.charge, r2, k2, f2)
+    key = (id(template.layout), r0, id(c0.layout), k0, f0, id(entries), r1, k1, id(c2.layout), r2, k2, f2)
     return plan_three_cached.lookup(key, template, steps, entries)

@@ -179,7 +179,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
         arrays, packed_o, keys_o, shapes_o, offs_o = plan_all(
             lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
             np.array(out_charge, dtype=np.int64), _SHIFT, _BIAS, COMPILED_GEMM)
-        lay_o = layout.put(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
+        lay_o = layout.offer(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
     else:
         # a scalar result, or charges too large (the layout raises the error)
         fa = _fusion(tuple(a_legs[i] for i in free_a), k)

@@ -89,6 +89,12 @@ class _LayoutCache:
             pass
         return lay
 
+    def offer(self, lay: Layout) -> Layout:
+        """The cached layout of ``lay``'s structure if there is one (layouts of one structure are
+        equal, and callers may key on a layout's identity), else ``lay``, now cached."""
+        held = self.items.get((lay.legs, lay.charge))
+        return self.put(lay) if held is None else held
+
     def put(self, lay: Layout) -> Layout:
         self.items[(lay.legs, lay.charge)] = lay
         if len(self.items) > self.size:
