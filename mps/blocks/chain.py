@@ -1,7 +1,8 @@
 """Planned chains: a running tensor contracted with a fixed sequence of constant tensors, the
 form of the effective Hamiltonian and of the environment updates.
 
-Every step is planned once (:mod:`mps.blocks.contract`), the constants are packed once, and
+Every step is planned once (:mod:`mps.blocks.contract`; a whole three-step chain in one call:
+:mod:`mps.blocks.chain_plan`), the constants are packed once, and
 between steps the intermediate never becomes a block tensor: a compiled pass moves it from one
 step's products into the next step's packing, or a sparse MPO step is applied entry by entry
 on the way (:mod:`mps.blocks.direct`).
@@ -34,6 +35,11 @@ class PlannedChain:
     (an MPO tensor, :func:`mps.blocks.direct.use_direct`) is done entry by entry instead, from the
     previous step's products straight into the next step's packing (:mod:`mps.blocks.direct`).
     Used for the effective Hamiltonian, whose Krylov iterations repeat the same chain many times.
+
+    The chains of a sweep (effective Hamiltonian, environment updates) are three steps with such
+    a middle step; those are planned in one compiled call and cached as a whole
+    (:mod:`mps.blocks.chain_plan`); ``together=False`` plans them step by step (the same plans;
+    the tests compare the two).
     """
 
     def __init__(self, template: BlockTensor, steps, direct: bool = True, together: bool = True):
