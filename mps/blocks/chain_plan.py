@@ -15,12 +15,13 @@ are the same arrays the step-by-step planner builds (tested), cached per chain s
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from numba import njit
 
 from mps.blocks.charges import _BIAS, _SHIFT
-from mps.blocks.contract import COMPILED_GEMM, ContractionPlan, axis_split, check_pairs, in_range, wrap_plan
+from mps.blocks.contract import COMPILED_GEMM, ContractionPlan, axis_split, check_pairs, wrap_plan
 from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_legs, direct_tasks
 from mps.blocks.kernels import allowed_blocks
 from mps.blocks.plan_cache import PlanCache
@@ -107,9 +108,8 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     (c0, r0, k0, f0), (c1, r1, k1, _), (c2, r2, k2, f2) = steps
     legs, charge = template.legs, template.charge
     # every intermediate's legs are some of these and its charge a sum of some of these charges
-    every = template.legs + c0.legs + c1.legs + c2.legs
-    bound = tuple(sum(abs(q[i]) for q in (charge, c0.charge, c1.charge, c2.charge)) for i in range(len(charge)))
-    if not in_range(every, bound):
+    tensors = (template, c0, c1, c2)
+    if sum(t.layout.bound + max(map(abs, t.charge)) for t in tensors) >= _BIAS:
         return None
     ax0, legs0, charge0 = _step_axes(legs, charge, r0, c0, k0, f0)
     legs1, charge1 = direct_legs(legs0, charge0, r1, c1, k1)
@@ -117,11 +117,11 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     if not legs2:
         return None
     free_c, con_c, con_radix, e_keys, e_offs, values = contracted_entries(entries, c1, k1)
-    free_x = np.array([i for i in range(len(legs0)) if i not in r1], dtype=np.int64)
+    x_axes = axis_split(len(legs0), r1, c1.ndim, k1)      # free_a: the free axes of step 1's X
     lay_t, lay_0, lay_2 = template.layout, c0.layout, c2.layout
     arr0, lo0, ld1, arr2, lo2, packed2, (entry, tasks, zeros, flops) = plan_three(
         lay_t.packed, _arrays(lay_t), lay_0.packed, _arrays(lay_0), f0, ax0[2:6], _charge(charge0),
-        ax0[6:8], c1.layout.packed, free_x, np.array(r1, dtype=np.int64), e_keys, e_offs, free_c, con_c,
+        ax0[6:8], c1.layout.packed, x_axes.rows_a, x_axes.mids_a, e_keys, e_offs, free_c, con_c,
         con_radix, _charge(charge1), lay_2.packed, _arrays(lay_2), f2, ax2[2:6], _charge(charge2),
         _SHIFT, _BIAS, COMPILED_GEMM)
     lay_o0, lay_1 = Layout(legs0, charge0, *lo0), Layout(legs1, charge1, *ld1)
@@ -136,7 +136,8 @@ def _arrays(lay: Layout):
     return lay.key_array, lay.shape_array, lay.offsets
 
 
-def _charge(charge) -> np.ndarray:
+@lru_cache(maxsize=256)
+def _charge(charge: tuple[int, ...]) -> np.ndarray:
     return np.array(charge, dtype=np.int64)
 
 

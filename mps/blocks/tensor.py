@@ -45,6 +45,11 @@ class Layout:
         return len(self.key_array)
 
     @cached_property
+    def bound(self) -> int:
+        """Largest |combined charge| a combination of sectors of the legs can reach."""
+        return charge_bound(self.legs)
+
+    @cached_property
     def keys(self) -> tuple[tuple[int, ...], ...]:
         return tuple(map(tuple, self.key_array.tolist()))
 
