@@ -67,8 +67,8 @@ def correlation_signal(correlation: dict | None, window) -> tuple[str, str]:
     xi = correlation.get("xi")
     if xi is None or not math.isfinite(xi):
         why = correlation.get("error")
-        return "none", ("charge correlations do not decay exponentially" if why is None
-                        else f"no correlation length ({why})")
+        return "none", ("no exponential decay of the charge correlations found (no finite correlation length)"
+                        if why is None else f"no correlation length ({why})")
     if xi < window[0]:
         return "exponential", (f"charge correlations decay exponentially with xi = {xi:.3g} sites, below the "
                                f"smallest fitted block {window[0]}")
@@ -86,6 +86,8 @@ def decide(entropy_fit: dict, correlation: dict | None, window, L: int,
         verdict = "critical"
     else:
         verdict = "undecided"
+    if verdict == "gapped" and cor == "none":
+        cor_why += " - the chain may be too short to resolve the decay"
     reasons = [cor_why, ent_why]
     if verdict == "gapped":
         reason = "gapped: " + "; ".join(reasons) + "; no log l fit of c or K"

@@ -66,3 +66,16 @@ def test_headline_withholds_outside_critical_and_negative_values():
     assert value is None and "<= 0" in why
     value, why = headline({"value": 0.98}, "c", gapped)
     assert value is None and why.startswith("gapped")
+
+
+def test_gapped_by_saturation_does_not_claim_the_correlations_do_not_decay():
+    """A saturated entropy with no correlation length found is called gapped; the reason says
+    that no decay was resolved (the chain may be too short), not that there is none, which
+    would contradict the verdict. A critical verdict keeps the plain wording."""
+    gapped = decide(_fit(-0.05), {"xi": math.inf}, WINDOW, L)
+    assert "do not decay" not in gapped["reason"] and "too short to resolve" in gapped["reason"]
+    critical = decide(_fit(1.0), {"xi": math.inf}, WINDOW, L)
+    assert "too short" not in critical["reason"]
+    assert "no exponential decay of the charge correlations found" in critical["reason"]
+    unmeasured = decide(_fit(-0.05), None, WINDOW, L)
+    assert "too short" not in unmeasured["reason"]
