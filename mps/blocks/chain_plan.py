@@ -44,14 +44,6 @@ class ThreeSteps:
 
 
 @njit(cache=True, nogil=True)
-def _plan_step(packed_r, lay_r, packed_c, lay_c, run_first, ax, charge, shift, bias, limit):  # pragma: no cover
-    """:func:`plan_all` of the running tensor with a constant, in either operand order."""
-    if run_first:
-        return plan_all(packed_r, lay_r, packed_c, lay_c, ax[0], ax[1], ax[2], ax[3], charge, shift, bias, limit)
-    return plan_all(packed_c, lay_c, packed_r, lay_r, ax[0], ax[1], ax[2], ax[3], charge, shift, bias, limit)
-
-
-@njit(cache=True, nogil=True)
 def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, packed_1, free_x, con_x,
                e_keys, e_offs, free_c, con_c, con_radix, charge1, packed_2, lay_2, first2, ax2, charge2,
                shift, bias, limit):  # pragma: no cover - compiled
@@ -61,14 +53,19 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     middle axes of A, middle axes and columns of B; ``out0``: step 0's result's row and column
     axes; the entries of constant 1 as :func:`mps.blocks.direct.contracted_entries` sorts them.
     Returns (step 0's plan arrays, its result's layout, step 1's result's layout, step 2's plan
-    arrays, its result's layout and packed legs, step 1's tasks)."""
-    arr0, packed_o0, keys_o0, shapes_o0, offs_o0 = _plan_step(packed_t, lay_t, packed_0, lay_0, first0, ax0,
-                                                              charge0, shift, bias, limit)
+    arrays, its result's layout and packed legs, step 1's tasks). The planner is called here
+    directly, not through a helper: every level of kernels calling kernels is compiled again
+    with everything below it (3 s of the first run for one helper level)."""
+    pa, la, pb, lb = (packed_t, lay_t, packed_0, lay_0) if first0 else (packed_0, lay_0, packed_t, lay_t)
+    arr0, packed_o0, keys_o0, shapes_o0, offs_o0 = plan_all(pa, la, pb, lb, ax0[0], ax0[1], ax0[2], ax0[3],
+                                                            charge0, shift, bias, limit)
     packed_d = _join(select_legs(packed_o0, free_x), select_legs(packed_1, free_c))
     keys_d, shapes_d, offs_d = allowed_blocks(packed_d[0], packed_d[1], packed_d[2], packed_d[3], charge1,
                                               shift, bias)
-    arr2, packed_o2, keys_o2, shapes_o2, offs_o2 = _plan_step(packed_d, (keys_d, shapes_d, offs_d), packed_2,
-                                                              lay_2, first2, ax2, charge2, shift, bias, limit)
+    lay_d = (keys_d, shapes_d, offs_d)
+    pa, la, pb, lb = (packed_d, lay_d, packed_2, lay_2) if first2 else (packed_2, lay_2, packed_d, lay_d)
+    arr2, packed_o2, keys_o2, shapes_o2, offs_o2 = plan_all(pa, la, pb, lb, ax2[0], ax2[1], ax2[2], ax2[3],
+                                                            charge2, shift, bias, limit)
     starts = packed_d[2]
     r = len(starts) - 1
     radix = np.ones(r, np.int64)
@@ -84,8 +81,7 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
         rows, cols, dest, ld = ax2[2], ax2[3], arr2[2], arr2[3]
     tasks = direct_tasks(keys_o0, shapes_o0, out0[0], out0[1], arr0[4], arr0[5], free_x, con_x, e_keys, e_offs,
                          free_c, con_c, con_radix, codes, radix, shapes_d, rows, cols, dest, ld)
-    return (arr0, (keys_o0, shapes_o0, offs_o0), (keys_d, shapes_d, offs_d), arr2, (keys_o2, shapes_o2, offs_o2),
-            packed_o2, tasks)
+    return (arr0, (keys_o0, shapes_o0, offs_o0), lay_d, arr2, (keys_o2, shapes_o2, offs_o2), packed_o2, tasks)
 
 
 def _operands(legs, charge, axes, const: BlockTensor, axes_c, run_first: bool):
