@@ -21,7 +21,7 @@ import numpy as np
 from numba import njit
 
 from mps.blocks.charges import _BIAS, _SHIFT
-from mps.blocks.contract import COMPILED_GEMM, ContractionPlan, axis_split, check_pairs, wrap_plan
+from mps.blocks.contract import COMPILED_GEMM, ContractionPlan, axis_split, result_structure, wrap_plan
 from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_legs, direct_tasks
 from mps.blocks.kernels import allowed_blocks
 from mps.blocks.plan_cache import PlanCache
@@ -84,20 +84,11 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     return (arr0, (keys_o0, shapes_o0, offs_o0), lay_d, arr2, (keys_o2, shapes_o2, offs_o2), packed_o2, tasks)
 
 
-def _operands(legs, charge, axes, const: BlockTensor, axes_c, run_first: bool):
-    """(A legs, A charge, A axes, B legs, B charge, B axes) of a step."""
-    if run_first:
-        return legs, charge, axes, const.legs, const.charge, axes_c
-    return const.legs, const.charge, axes_c, legs, charge, axes
-
-
 def _step_axes(legs, charge, axes, const: BlockTensor, axes_c, run_first: bool):
-    """Axis bookkeeping, checked pairs and the result's legs and charge of one GEMM step."""
-    a_legs, a_charge, a_axes, b_legs, b_charge, b_axes = _operands(legs, charge, axes, const, axes_c, run_first)
-    ax = axis_split(len(a_legs), a_axes, len(b_legs), b_axes)
-    check_pairs(a_legs, a_axes, b_legs, b_axes)
-    out_legs = tuple(a_legs[i] for i in ax.free_a) + tuple(b_legs[i] for i in ax.free_b)
-    return ax, out_legs, tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
+    """:func:`mps.blocks.contract.result_structure` of one GEMM step, in its operand order."""
+    if run_first:
+        return result_structure(legs, charge, axes, const.legs, const.charge, axes_c)
+    return result_structure(const.legs, const.charge, axes_c, legs, charge, axes)
 
 
 def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:

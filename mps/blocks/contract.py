@@ -167,13 +167,10 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
     The fusion maps and layouts are cached per structure; the groups and the entry-by-entry
     maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_all`).
     """
-    ax = axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
-    check_pairs(a_legs, axes_a, b_legs, axes_b)
+    ax, out_legs, out_charge = result_structure(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)
     k = a_legs[0].nq
     free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
     lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
-    out_legs = tuple(a_legs[i] for i in free_a) + tuple(b_legs[i] for i in free_b)
-    out_charge = tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
     if out_legs and in_range(out_legs, out_charge):
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
         arrays, packed_o, keys_o, shapes_o, offs_o = plan_all(
@@ -190,6 +187,15 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
                              len(free_a), fa.arrays, fm.arrays, fb.arrays)
         arrays = plan_arrays(places, COMPILED_GEMM)
     return wrap_plan(arrays, ax, lay_a, lay_b, lay_o, out_legs, out_charge)
+
+
+def result_structure(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b) -> tuple[Axes, tuple[Leg, ...], tuple[int, ...]]:
+    """Axis bookkeeping (contracted legs checked), legs and total charge of the result of
+    contracting legs ``axes_a`` of A with legs ``axes_b`` of B."""
+    ax = axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
+    check_pairs(a_legs, axes_a, b_legs, axes_b)
+    out_legs = tuple(a_legs[i] for i in ax.free_a) + tuple(b_legs[i] for i in ax.free_b)
+    return ax, out_legs, tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
 
 
 def in_range(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> bool:

@@ -42,6 +42,13 @@ def _firsts(kept):  # pragma: no cover - compiled
     return out
 
 
+@njit(cache=True, nogil=True, inline="always")
+def _blocks(count, rank, total, mats):  # pragma: no cover - compiled
+    """Empty (keys, shapes, offsets, data) of ``count`` blocks of rank ``rank``, ``total`` entries."""
+    return (np.empty((count, rank), np.int64), np.empty((count, rank), np.int64),
+            np.zeros(count + 1, np.int64), np.empty(total, mats.dtype))
+
+
 @njit(cache=True, nogil=True)
 def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, weight, start, ld, mats):  # pragma: no cover
     """(keys, shapes, offsets, data) of the left factor (row legs..., bond).
@@ -58,10 +65,7 @@ def left_factor_blocks(combos, sector, offset, sizes, starts, bond_of, kept, wei
         if b >= 0:
             count += 1
             total += _combo_size(combos, i, sizes, starts) * kept[b]
-    keys = np.empty((count, r + 1), np.int64)
-    shapes = np.empty((count, r + 1), np.int64)
-    offsets = np.zeros(count + 1, np.int64)
-    data = np.empty(total, mats.dtype)
+    keys, shapes, offsets, data = _blocks(count, r + 1, total, mats)
     first = _firsts(kept)
     blk, pos = 0, 0
     for i in range(n):
@@ -103,10 +107,7 @@ def right_factor_blocks(combos, sector, offset, sizes, starts, col_of_bond, kept
         for j in range(lo[b], hi[b]):
             count += 1
             total += _combo_size(combos, order[j], sizes, starts) * kept[b]
-    keys = np.empty((count, r + 1), np.int64)
-    shapes = np.empty((count, r + 1), np.int64)
-    offsets = np.zeros(count + 1, np.int64)
-    data = np.empty(total, mats.dtype)
+    keys, shapes, offsets, data = _blocks(count, r + 1, total, mats)
     first = _firsts(kept)
     blk, pos = 0, 0
     for b in range(nb):
