@@ -66,7 +66,8 @@ class PlannedChain:
 
         # work buffers, allocated once: fresh multi-megabyte arrays would cost page faults on
         # every application; the matrix views of every large group are cut once too
-        self._packed_in = [None if p is None else np.empty(p.size, dtype=self.dtype) for p in self.running]
+        self._packed_in = [None if p is None else np.empty(p.sizes[0 if f else 1], dtype=self.dtype)
+                           for p, f in zip(self.plans, self.first)]
         self._products = [None if p is None else np.empty(p.packed_size + 1, dtype=self.dtype) for p in self.plans]
         self._bound = [None if p is None else self._bind(k) for k, p in enumerate(self.plans)]
 

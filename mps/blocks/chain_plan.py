@@ -16,13 +16,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import lru_cache
+from typing import NamedTuple
 
 import numpy as np
 from numba import njit
 
 from mps.blocks.charges import _BIAS, _SHIFT
-from mps.blocks.contract import COMPILED_GEMM, ContractionPlan, axis_split, result_structure, wrap_plan
-from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_legs, direct_tasks
+from mps.blocks.contract import COMPILED_GEMM, Axes, ContractionPlan, axis_split, wrap_plan
+from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_tasks
 from mps.blocks.kernels import allowed_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import _join, plan_all, select_legs
@@ -52,8 +53,9 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     the tasks of step 1 from step 0's products into step 2's packing. ``ax0``/``ax2``: rows,
     middle axes of A, middle axes and columns of B; ``out0``: step 0's result's row and column
     axes; the entries of constant 1 as :func:`mps.blocks.direct.contracted_entries` sorts them.
-    Returns (step 0's plan arrays, its result's layout, step 1's result's layout, step 2's plan
-    arrays, its result's layout and packed legs, step 1's tasks). The planner is called here
+    Returns (step 0's plan arrays without its result's placement, constant 2's placement and
+    step 2's other plan arrays, step 2's result's layout and packed legs, step 1's tasks). The
+    planner is called here
     directly, not through a helper: every level of kernels calling kernels is compiled again
     with everything below it (3 s of the first run for one helper level)."""
     pa, la, pb, lb = (packed_t, lay_t, packed_0, lay_0) if first0 else (packed_0, lay_0, packed_t, lay_t)
@@ -81,42 +83,85 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
         rows, cols, dest, ld = ax2[2], ax2[3], arr2[2], arr2[3]
     tasks = direct_tasks(keys_o0, shapes_o0, out0[0], out0[1], arr0[4], arr0[5], free_x, con_x, e_keys, e_offs,
                          free_c, con_c, con_radix, codes, radix, shapes_d, rows, cols, dest, ld)
-    return (arr0, (keys_o0, shapes_o0, offs_o0), lay_d, arr2, (keys_o2, shapes_o2, offs_o2), packed_o2, tasks)
+    # only what the chain runs goes back (each array handed to Python costs ~0.4 us): not step
+    # 0's result placement nor step 2's running operand's, which the tasks hold
+    keep0 = (arr0[0], arr0[1], arr0[2], arr0[3]) + arr0[6:]
+    const2 = (arr2[2], arr2[3]) if first2 else (arr2[0], arr2[1])
+    return keep0, const2 + arr2[4:], (keys_o2, shapes_o2, offs_o2), packed_o2, tasks
 
 
-def _step_axes(legs, charge, axes, const: BlockTensor, axes_c, run_first: bool):
-    """:func:`mps.blocks.contract.result_structure` of one GEMM step, in its operand order."""
-    if run_first:
-        return result_structure(legs, charge, axes, const.legs, const.charge, axes_c)
-    return result_structure(const.legs, const.charge, axes_c, legs, charge, axes)
+class _Shape(NamedTuple):
+    """The bookkeeping of a three-step chain that depends only on ranks, axes and operand order:
+    both GEMM steps' axes, step 1's split of X's axes, where every leg of the three results comes
+    from (tensor 0..3: running, constants 0, 1, 2; leg), and the leg pairs each step contracts."""
+
+    ax0: Axes
+    x_axes: Axes
+    ax2: Axes
+    legs0: tuple[tuple[int, int], ...]
+    legs1: tuple[tuple[int, int], ...]
+    legs2: tuple[tuple[int, int], ...]
+    pairs: tuple[tuple[tuple[int, int], tuple[int, int]], ...]
+
+
+@lru_cache(maxsize=256)
+def _shape(ranks: tuple[int, int, int, int], r0, k0, f0: bool, r1, k1, r2, k2, f2: bool) -> _Shape:
+    nt, n0, n1, n2 = ranks
+    run = tuple((0, i) for i in range(nt))
+    c0, c1, c2 = (tuple((t, i) for i in range(n)) for t, n in ((1, n0), (2, n1), (3, n2)))
+    pairs = [(run[i], c0[j]) for i, j in zip(r0, k0)]
+    ax0 = axis_split(nt, r0, n0, k0) if f0 else axis_split(n0, k0, nt, r0)
+    a, b = (run, c0) if f0 else (c0, run)
+    legs0 = tuple(a[i] for i in ax0.free_a) + tuple(b[i] for i in ax0.free_b)
+    pairs += [(legs0[i], c1[j]) for i, j in zip(r1, k1)]
+    x_axes = axis_split(len(legs0), r1, n1, k1)
+    legs1 = tuple(legs0[i] for i in x_axes.free_a) + tuple(c1[i] for i in x_axes.free_b)
+    pairs += [(legs1[i], c2[j]) for i, j in zip(r2, k2)]
+    ax2 = axis_split(len(legs1), r2, n2, k2) if f2 else axis_split(n2, k2, len(legs1), r2)
+    a, b = (legs1, c2) if f2 else (c2, legs1)
+    legs2 = tuple(a[i] for i in ax2.free_a) + tuple(b[i] for i in ax2.free_b)
+    return _Shape(ax0, x_axes, ax2, legs0, legs1, legs2, tuple(pairs))
 
 
 def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     (c0, r0, k0, f0), (c1, r1, k1, _), (c2, r2, k2, f2) = steps
-    legs, charge = template.legs, template.charge
+    lay_t, lay_0, lay_1, lay_2 = template.layout, c0.layout, c1.layout, c2.layout
     # every intermediate's legs are some of these and its charge a sum of some of these charges
-    tensors = (template, c0, c1, c2)
-    if sum(t.layout.bound + max(map(abs, t.charge)) for t in tensors) >= _BIAS:
+    if (lay_t.bound + lay_0.bound + lay_1.bound + lay_2.bound
+            + sum(abs(c) for t in (template, c0, c1, c2) for c in t.charge)) >= _BIAS:
         return None
-    ax0, legs0, charge0 = _step_axes(legs, charge, r0, c0, k0, f0)
-    legs1, charge1 = direct_legs(legs0, charge0, r1, c1, k1)
-    ax2, legs2, charge2 = _step_axes(legs1, charge1, r2, c2, k2, f2)
-    if not legs2:
+    shape = _shape((template.ndim, c0.ndim, c1.ndim, c2.ndim), r0, k0, f0, r1, k1, r2, k2, f2)
+    if not shape.legs2:
         return None
+    legs = (template.legs, c0.legs, c1.legs, c2.legs)
+    for (t, i), (u, j) in shape.pairs:
+        x, y = legs[t][i], legs[u][j]
+        if x.__dict__.get("_dual") is not y and not x.is_dual_of(y):
+            raise ValueError(f"leg {i} of {_NAMES[t]} does not match leg {j} of {_NAMES[u]}: contracted "
+                             "legs need the same sectors and opposite flows")
+    legs0, legs1, legs2 = (tuple(legs[t][i] for t, i in src) for src in (shape.legs0, shape.legs1, shape.legs2))
+    charge0 = tuple(a + b for a, b in zip(template.charge, c0.charge))
+    charge1 = tuple(a + b for a, b in zip(charge0, c1.charge))
+    charge2 = tuple(a + b for a, b in zip(charge1, c2.charge))
+    ax0, ax2 = shape.ax0, shape.ax2
     free_c, con_c, con_radix, e_keys, e_offs, values = contracted_entries(entries, c1, k1)
-    x_axes = axis_split(len(legs0), r1, c1.ndim, k1)      # free_a: the free axes of step 1's X
-    lay_t, lay_0, lay_2 = template.layout, c0.layout, c2.layout
-    arr0, lo0, ld1, arr2, lo2, packed2, (entry, tasks, zeros, flops) = plan_three(
+    arr0, arr2, lo2, packed2, (entry, tasks, zeros, flops) = plan_three(
         lay_t.packed, _arrays(lay_t), lay_0.packed, _arrays(lay_0), f0, ax0[2:6], _charge(charge0),
-        ax0[6:8], c1.layout.packed, x_axes.rows_a, x_axes.mids_a, e_keys, e_offs, free_c, con_c,
+        ax0[6:8], lay_1.packed, shape.x_axes.rows_a, shape.x_axes.mids_a, e_keys, e_offs, free_c, con_c,
         con_radix, _charge(charge1), lay_2.packed, _arrays(lay_2), f2, ax2[2:6], _charge(charge2),
         _SHIFT, _BIAS, COMPILED_GEMM)
-    lay_o0, lay_1 = Layout(legs0, charge0, *lo0), Layout(legs1, charge1, *ld1)
     lay_o2 = layout.offer(Layout(legs2, charge2, *lo2, packed2))
-    plan0 = wrap_plan(arr0, ax0, *((lay_t, lay_0) if f0 else (lay_0, lay_t)), lay_o0, legs0, charge0)
-    plan2 = wrap_plan(arr2, ax2, *((lay_1, lay_2) if f2 else (lay_2, lay_1)), lay_o2, legs2, charge2)
+    plan0 = wrap_plan(arr0[:4] + _UNKEPT + arr0[4:], ax0, *((lay_t, lay_0) if f0 else (lay_0, lay_t)), None,
+                      legs0, charge0)
+    const2 = arr2[:2]
+    arr2 = (_UNKEPT + const2 if f2 else const2 + _UNKEPT) + arr2[2:]
+    plan2 = wrap_plan(arr2, ax2, *((None, lay_2) if f2 else (lay_2, None)), lay_o2, legs2, charge2)
     step = DirectStep(legs1, charge1, tasks, values[entry], zeros, int(flops))
     return ThreeSteps(plan0, step, plan2, (lay_t, lay_0, lay_2, entries))
+
+
+_NAMES = ("the running tensor", "constant 0", "constant 1", "constant 2")
+_UNKEPT = (None, None)      # (dest, ld) of a placement the chain does not keep
 
 
 def _arrays(lay: Layout):

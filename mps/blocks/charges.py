@@ -86,6 +86,10 @@ class Leg:
 
     @cached_property
     def max_charge(self) -> int:
+        """Largest |charge component| of the leg (with one charge, the sectors are sorted, so it
+        sits at one of the two ends)."""
+        if len(self.charges[0]) == 1:
+            return max(-self.charges[0][0], self.charges[-1][0])
         return max(abs(c) for q in self.charges for c in q)
 
     @cached_property
@@ -122,6 +126,8 @@ class Leg:
             for name, value in (("charges", self.charges), ("sizes", self.sizes), ("flow", -self.flow),
                                 ("_dual", self)):
                 object.__setattr__(d, name, value)
+            if "max_charge" in self.__dict__:     # same sectors: nothing to recompute
+                object.__setattr__(d, "max_charge", self.max_charge)
             object.__setattr__(self, "_dual", d)
         return d
 

@@ -82,6 +82,10 @@ class ContractionPlan:
     zero. Where every block goes is held per block (:class:`Placement`), so building a plan costs
     time proportional to the number of blocks, and running it is one compiled copy per operand,
     the group products, and one compiled copy back.
+
+    A placement is None where the plan does not keep it: a scalar result's, and in a three-step
+    chain (:mod:`mps.blocks.chain_plan`) the first step's result and the last step's running
+    operand, which the direct step between them reaches through its own task list.
     """
 
     out_legs: tuple[Leg, ...]
@@ -90,10 +94,10 @@ class ContractionPlan:
     large_array: np.ndarray           # COMPILED_GEMM multiply-adds (one compiled call), and of the others
     flops: int                        # real multiply-adds times two, counted from the group shapes
     packed_size: int
-    out_size: int
-    place_a: Placement
-    place_b: Placement
-    place_o: Placement | None          # None: the result is a scalar
+    place_a: Placement | None
+    place_b: Placement | None
+    place_o: Placement | None
+    sizes: tuple[int, int]            # packed lengths of A and B
 
     @property
     def nbytes(self) -> int:
@@ -210,13 +214,15 @@ def wrap_plan(arrays, ax: Axes, lay_a: Layout, lay_b: Layout, lay_o: Layout | No
     dest_a, ld_a, dest_b, ld_b, dest_o, ld_o, small, large, flops, pa, pb, pc, hole = arrays
     if hole:
         raise AssertionError("contraction plan left a hole in a group matrix")
-    place_a = Placement(lay_a.shape_array, lay_a.offsets, ax.rows_a, ax.mids_a, dest_a, ld_a, pa, lay_a.key_array)
-    place_b = Placement(lay_b.shape_array, lay_b.offsets, ax.mids_b, ax.cols_b, dest_b, ld_b, pb, lay_b.key_array)
-    place_o = None
-    if out_legs:
+    place_a = place_b = place_o = None       # a layout given as None: that placement is not kept
+    if lay_a is not None:
+        place_a = Placement(lay_a.shape_array, lay_a.offsets, ax.rows_a, ax.mids_a, dest_a, ld_a, pa, lay_a.key_array)
+    if lay_b is not None:
+        place_b = Placement(lay_b.shape_array, lay_b.offsets, ax.mids_b, ax.cols_b, dest_b, ld_b, pb, lay_b.key_array)
+    if out_legs and lay_o is not None:
         place_o = Placement(lay_o.shape_array, lay_o.offsets, ax.rows_o, ax.cols_o, dest_o, ld_o, pc, lay_o.key_array)
-    return ContractionPlan(out_legs, out_charge, small, large, int(flops), int(pc),
-                           lay_o.size if out_legs else 1, place_a, place_b, place_o)
+    return ContractionPlan(out_legs, out_charge, small, large, int(flops), int(pc), place_a, place_b, place_o,
+                           (int(pa), int(pb)))
 
 
 _NO_BLOCKS = (np.zeros((0, 0), dtype=np.int64), np.zeros((0, 0), dtype=np.int64), np.zeros(1, dtype=np.int64))

@@ -68,11 +68,14 @@ def _build_layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
     k = legs[0].nq
     if any(leg.nq != k for leg in legs) or len(charge) != k:
         raise ValueError("all legs and the total charge must have the same number of charges")
-    if charge_bound(legs) + max(map(abs, charge)) >= _BIAS:
+    bound = charge_bound(legs)
+    if bound + max(map(abs, charge)) >= _BIAS:
         raise ValueError(f"charges must be smaller than {_BIAS} in magnitude")
     packed = pack_legs(legs)
     keys, shapes, offsets = allowed_blocks(*packed, np.asarray(charge, dtype=np.int64), _SHIFT, _BIAS)
-    return Layout(legs, tuple(charge), keys, shapes, offsets, packed)
+    lay = Layout(legs, tuple(charge), keys, shapes, offsets, packed)
+    lay.__dict__["bound"] = bound       # the cached property, already known
+    return lay
 
 
 class _LayoutCache:
