@@ -24,15 +24,16 @@ from numba import njit
 from mps.blocks.charges import _BIAS, _SHIFT
 from mps.blocks.contract import COMPILED_GEMM, Axes, ContractionPlan, axis_split, wrap_plan
 from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_tasks
-from mps.blocks.kernels import allowed_blocks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import _join, plan_all, select_legs
+from mps.blocks.sector_kernel import allowed_blocks
 from mps.blocks.tensor import BlockTensor, Layout, layout
 
 
-@dataclass(frozen=True)
+@dataclass(eq=False)
 class ThreeSteps:
-    """The plans of a three-step chain: contraction, direct step, contraction."""
+    """The plans of a three-step chain: contraction, direct step, contraction (never changed
+    once built; a plain dataclass, as :class:`mps.blocks.tensor.Layout`)."""
 
     first: ContractionPlan
     direct: DirectStep

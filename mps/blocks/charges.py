@@ -19,7 +19,7 @@ from itertools import accumulate
 
 import numpy as np
 
-from mps.blocks.kernels import fuse_sectors
+from mps.blocks.sector_kernel import fuse_sectors
 
 _MAX_CHARGES = 3
 _SHIFT = 21

@@ -73,7 +73,7 @@ class Placement(NamedTuple):
         return unpack_blocks(packed, self.shapes, self.offsets, self.rows, self.cols, self.dest, self.ld)
 
 
-@dataclass(frozen=True)
+@dataclass(eq=False)
 class ContractionPlan:
     """Everything needed to contract two structures.
 
@@ -85,7 +85,8 @@ class ContractionPlan:
 
     A placement is None where the plan does not keep it: a scalar result's, and in a three-step
     chain (:mod:`mps.blocks.chain_plan`) the first step's result and the last step's running
-    operand, which the direct step between them reaches through its own task list.
+    operand, which the direct step between them reaches through its own task list. Never changed
+    once built (a plain dataclass, as :class:`mps.blocks.tensor.Layout`).
     """
 
     out_legs: tuple[Leg, ...]

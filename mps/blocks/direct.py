@@ -37,13 +37,14 @@ entries per index at bond 64, and entry by entry was still 13 % faster at 5.8 at
 MPOs of the shipped families have 1.3 (fermions) to 3.2 (complex scalar, nmax 5, merged pair)."""
 
 
-@dataclass(frozen=True)
+@dataclass(eq=False)
 class DirectStep:
     """The AXPYs of one direct contraction. Row t of ``tasks`` is (src, dst, first, extents...,
     source strides..., destination strides...) over X's free legs: ``values[t]`` times the slab
     of X starting at packed position src is added to the slab of Y starting at dst (written, if
     first). Rows of ``zeros`` (start, extents..., strides...) are the slabs of Y no task reaches,
-    cleared before the tasks run."""
+    cleared before the tasks run. Never changed once built (a plain dataclass, as
+    :class:`mps.blocks.tensor.Layout`)."""
 
     out_legs: tuple[Leg, ...]
     out_charge: tuple[int, ...]

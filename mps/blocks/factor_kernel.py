@@ -8,7 +8,7 @@ fused sector keeps a bond sector, and a block's data are its rows of the left ma
 columns only. The right factor has the bond and the column legs: for every bond sector in
 order, the column combinations of the paired column sector (C order), a block's data being the
 kept rows of the right matrix at its columns. That is the order in which the allowed blocks of
-either factor's structure are enumerated (:func:`mps.blocks.kernels.allowed_blocks`), so the
+either factor's structure are enumerated (:func:`mps.blocks.sector_kernel.allowed_blocks`), so the
 layouts computed here are the layouts of those structures, found without a search.
 """
 

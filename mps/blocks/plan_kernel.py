@@ -15,7 +15,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from mps.blocks.kernels import allowed_blocks, covered_entries, fuse_sectors
+from mps.blocks.kernels import covered_entries
+from mps.blocks.sector_kernel import allowed_blocks, fused_codes
 
 
 @njit(cache=True, nogil=True)
@@ -157,7 +158,7 @@ def _fusion_arrays(packed, shift, bias):  # pragma: no cover - compiled
     Inlined into its callers: a kernel calling a kernel is compiled together with it, and one
     level less saves about 1.5 s of the first run's compilation."""
     charges, sizes, starts, flows = packed
-    _, codes, sector, offset, _, fsizes = fuse_sectors(charges, sizes, starts, flows, 1, shift, bias)
+    codes, sector, offset, _, fsizes = fused_codes(charges, sizes, starts, flows, 1, shift, bias)
     r = len(flows)
     radix = np.ones(r, np.int64)
     for i in range(r - 2, -1, -1):

@@ -17,16 +17,19 @@ from functools import cached_property
 import numpy as np
 
 from mps.blocks.charges import _BIAS, _SHIFT, Leg, charge_bound, mixed_radix, pack_legs
-from mps.blocks.kernels import allowed_blocks, block_map
+from mps.blocks.kernels import block_map
+from mps.blocks.sector_kernel import allowed_blocks
 
 
-@dataclass(frozen=True)
+@dataclass(eq=False)
 class Layout:
     """Allowed blocks of a structure and where each lives in the flat data array.
 
     ``key_array`` (nblocks, nlegs) holds the sector indices of every block, ``shape_array`` its
     shape, ``offsets`` its start (plus the total size at the end); ``keys``, ``shapes`` and
-    ``index`` are the same as tuples and a dict, built on first use.
+    ``index`` are the same as tuples and a dict, built on first use. Shared through the layout
+    cache and never changed after it is built (not a frozen dataclass only because those cost
+    ~1 us more to build, and a sweep builds thousands of layouts and plans).
     """
 
     legs: tuple[Leg, ...]
@@ -74,7 +77,7 @@ def _build_layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
     packed = pack_legs(legs)
     keys, shapes, offsets = allowed_blocks(*packed, np.asarray(charge, dtype=np.int64), _SHIFT, _BIAS)
     lay = Layout(legs, tuple(charge), keys, shapes, offsets, packed)
-    lay.__dict__["bound"] = bound       # the cached property, already known
+    lay.bound = bound                   # the cached property, already known
     return lay
 
 
