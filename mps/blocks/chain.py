@@ -15,7 +15,7 @@ from functools import cached_property
 import numpy as np
 
 from mps.blocks.chain_plan import plan_chain_of_three, plan_three_cached
-from mps.blocks.contract import SMALL_GEMM, Placement, plan_contraction
+from mps.blocks.contract import SMALL_GEMM, Placement, pair_plans, plan_contraction
 from mps.blocks.direct import direct_legs, nonzero_entries, plan_direct, use_direct
 from mps.blocks.gemm_kernel import group_products
 from mps.blocks.kernels import pack_into, repack_blocks
@@ -169,4 +169,4 @@ def plan_direct_step(x_legs, x_charge, ax_run, const: BlockTensor, ax_const, src
 
 def planning_seconds() -> float:
     """Seconds spent building contraction plans and direct steps in this process."""
-    return plan_contraction.build_seconds + plan_direct_cached.build_seconds + plan_three_cached.build_seconds
+    return sum(c.build_seconds for c in (plan_contraction, pair_plans, plan_direct_cached, plan_three_cached))

@@ -167,15 +167,20 @@ def check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
 def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tuple[int, ...],
                 b_legs: tuple[Leg, ...], b_charge: tuple[int, ...], axes_b: tuple[int, ...]
                 ) -> ContractionPlan:
-    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B.
+    """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B (their layouts
+    from the layout cache)."""
+    return _plan_layouts(layout(a_legs, a_charge), axes_a, layout(b_legs, b_charge), axes_b)
 
-    The fusion maps and layouts are cached per structure; the groups and the entry-by-entry
-    maps come from one compiled call (:func:`mps.blocks.plan_kernel.plan_all`).
+
+def _plan_layouts(lay_a: Layout, axes_a: tuple[int, ...], lay_b: Layout, axes_b: tuple[int, ...]) -> ContractionPlan:
+    """Plan the contraction of legs ``axes_a`` of structure A with legs ``axes_b`` of B.
+
+    The groups and the entry-by-entry maps come from one compiled call
+    (:func:`mps.blocks.plan_kernel.plan_all`), which also builds the result's layout.
     """
-    ax, out_legs, out_charge = result_structure(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)
-    k = a_legs[0].nq
+    a_legs, b_legs = lay_a.legs, lay_b.legs
+    ax, out_legs, out_charge = result_structure(a_legs, lay_a.charge, axes_a, b_legs, lay_b.charge, axes_b)
     free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
-    lay_a, lay_b = layout(a_legs, a_charge), layout(b_legs, b_charge)
     if out_legs and in_range(out_legs, out_charge):
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
         arrays, packed_o, keys_o, shapes_o, offs_o = plan_all(
@@ -184,6 +189,7 @@ def _build_plan(a_legs: tuple[Leg, ...], a_charge: tuple[int, ...], axes_a: tupl
         lay_o = layout.offer(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
     else:
         # a scalar result, or charges too large (the layout raises the error)
+        k = a_legs[0].nq
         fa = _fusion(tuple(a_legs[i] for i in free_a), k)
         fb = _fusion(tuple(b_legs[i] for i in free_b), k)
         fm = _fusion(tuple(a_legs[i] for i in axes_a), k)
@@ -241,6 +247,27 @@ def _axes(axes: tuple[int, ...]) -> np.ndarray:
 plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
 """Plan the contraction of legs ``axes_a`` of A with legs ``axes_b`` of B (cached by structure):
 ``plan_contraction(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b)``."""
+
+
+class _PairCache(PlanCache):
+    @staticmethod
+    def weight(entry) -> int:
+        return entry[0].nbytes
+
+
+pair_plans = _PairCache(lambda lay_a, axes_a, lay_b, axes_b: (_plan_layouts(lay_a, axes_a, lay_b, axes_b), lay_a, lay_b),
+                        max_bytes=64 << 20)
+"""Plans of :func:`plan_pair`, with the two layouts they were built from (kept alive)."""
+
+
+def plan_pair(a: BlockTensor, b: BlockTensor, axes_a: tuple[int, ...], axes_b: tuple[int, ...]) -> ContractionPlan:
+    """The plan of ``contract(a, b, axes_a, axes_b)`` (axes as tuples of non-negative ints),
+    cached by the identities of the two layouts: the layout cache hands out one object per
+    structure, and the cached entry keeps both alive, so an id cannot pass to another layout
+    while it is a key. No leg is hashed, which matters where a new structure comes at every
+    call (the two-site tensor of every bond step of a sweep)."""
+    lay_a, lay_b = a.layout, b.layout
+    return pair_plans.lookup((id(lay_a), axes_a, id(lay_b), axes_b), lay_a, axes_a, lay_b, axes_b)[0]
 
 
 def gemm_groups(plan: ContractionPlan, pa: np.ndarray, pb: np.ndarray, dtype,

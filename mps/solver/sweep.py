@@ -26,7 +26,7 @@ from typing import Callable, Iterator
 
 import numpy as np
 
-from mps.blocks.contract import contract, plan_contraction, run_plan
+from mps.blocks.contract import contract, plan_pair, run_plan
 from mps.blocks.decompose import svd
 from mps.blocks.expand import widened_svd
 from mps.blocks.tensor import BlockTensor
@@ -209,7 +209,7 @@ class SectorSweeper:
     # ------------------------------------------------------------------ one bond
     def _optimize(self, j: int, stage: Stage, tol: float, rightward: bool):
         ts = self.state.tensors
-        plan = plan_contraction(ts[j].legs, ts[j].charge, (2,), ts[j + 1].legs, ts[j + 1].charge, (0,))
+        plan = plan_pair(ts[j], ts[j + 1], (2,), (0,))
         theta = run_plan(plan, ts[j], ts[j + 1])
         self.flops += plan.flops
         op = two_site_operator(self.lefts[j], self._pair(j), self.rights[j + 1], theta)

@@ -119,7 +119,7 @@ def test_reusing_contraction_plans_gives_bit_identical_sweeps(monkeypatch):
     environment updates) are cached by the identity of their MPO entries, the riskiest key in
     the engine, so they are rebuilt too."""
     from mps.blocks.chain_plan import plan_three_cached
-    from mps.blocks.contract import plan_contraction
+    from mps.blocks.contract import pair_plans, plan_contraction
 
     settings = SweepSettings((Stage(16, 3, 0.0),), discard=0.0, energy_tol=0.0)
     couplings = dict(J=1.0, Delta=0.6, h=0.1, h_stag=0.0, dimer=0.0)
@@ -128,7 +128,7 @@ def test_reusing_contraction_plans_gives_bit_identical_sweeps(monkeypatch):
         _, s = solve("xxz", 12, couplings, {"Sz": 0.0}, settings=settings, seed=8)
         return s
 
-    caches = (plan_contraction, plan_three_cached)
+    caches = (plan_contraction, pair_plans, plan_three_cached)
     for c in caches:
         c.cache_clear()
     before = [c.cache_info() for c in caches]
