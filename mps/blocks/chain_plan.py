@@ -14,8 +14,10 @@ are the same arrays the step-by-step planner builds (tested), cached per chain s
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from functools import lru_cache
+from operator import itemgetter
 from typing import NamedTuple
 
 import numpy as np
@@ -93,23 +95,29 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
 
 class _Shape(NamedTuple):
     """The bookkeeping of a three-step chain that depends only on ranks, axes and operand order:
-    both GEMM steps' axes, step 1's split of X's axes, where every leg of the three results comes
-    from (tensor 0..3: running, constants 0, 1, 2; leg), and the leg pairs each step contracts."""
+    both GEMM steps' axes, step 1's split of X's axes, the legs of the three results as pickers
+    from the four tensors' legs laid end to end (running tensor, constants 0, 1, 2), and the
+    pairs of those legs each step contracts."""
 
     ax0: Axes
     x_axes: Axes
     ax2: Axes
-    legs0: tuple[tuple[int, int], ...]
-    legs1: tuple[tuple[int, int], ...]
-    legs2: tuple[tuple[int, int], ...]
-    pairs: tuple[tuple[tuple[int, int], tuple[int, int]], ...]
+    legs0: Callable
+    legs1: Callable
+    legs2: Callable
+    pairs: tuple[tuple[int, int], ...]
+
+
+def _picker(idx: tuple[int, ...]) -> Callable:
+    """A function returning the items ``idx`` of a sequence as a tuple."""
+    return itemgetter(*idx) if len(idx) > 1 else (lambda seq: tuple(seq[i] for i in idx))
 
 
 @lru_cache(maxsize=256)
 def _shape(ranks: tuple[int, int, int, int], r0, k0, f0: bool, r1, k1, r2, k2, f2: bool) -> _Shape:
     nt, n0, n1, n2 = ranks
-    run = tuple((0, i) for i in range(nt))
-    c0, c1, c2 = (tuple((t, i) for i in range(n)) for t, n in ((1, n0), (2, n1), (3, n2)))
+    run = tuple(range(nt))
+    c0, c1, c2 = (tuple(range(start, start + n)) for start, n in ((nt, n0), (nt + n0, n1), (nt + n0 + n1, n2)))
     pairs = [(run[i], c0[j]) for i, j in zip(r0, k0)]
     ax0 = axis_split(nt, r0, n0, k0) if f0 else axis_split(n0, k0, nt, r0)
     a, b = (run, c0) if f0 else (c0, run)
@@ -121,7 +129,8 @@ def _shape(ranks: tuple[int, int, int, int], r0, k0, f0: bool, r1, k1, r2, k2, f
     ax2 = axis_split(len(legs1), r2, n2, k2) if f2 else axis_split(n2, k2, len(legs1), r2)
     a, b = (legs1, c2) if f2 else (c2, legs1)
     legs2 = tuple(a[i] for i in ax2.free_a) + tuple(b[i] for i in ax2.free_b)
-    return _Shape(ax0, x_axes, ax2, legs0, legs1, legs2, tuple(pairs))
+    return _Shape(ax0, x_axes, ax2, _picker(legs0), _picker(legs1), _picker(legs2) if legs2 else (lambda seq: ()),
+                  tuple(pairs))
 
 
 def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
@@ -132,15 +141,16 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
             + sum(abs(c) for t in (template, c0, c1, c2) for c in t.charge)) >= _BIAS:
         return None
     shape = _shape((template.ndim, c0.ndim, c1.ndim, c2.ndim), r0, k0, f0, r1, k1, r2, k2, f2)
-    if not shape.legs2:
+    legs = template.legs + c0.legs + c1.legs + c2.legs
+    legs2 = shape.legs2(legs)
+    if not legs2:
         return None
-    legs = (template.legs, c0.legs, c1.legs, c2.legs)
-    for (t, i), (u, j) in shape.pairs:
-        x, y = legs[t][i], legs[u][j]
-        if x.__dict__.get("_dual") is not y and not x.is_dual_of(y):
-            raise ValueError(f"leg {i} of {_NAMES[t]} does not match leg {j} of {_NAMES[u]}: contracted "
-                             "legs need the same sectors and opposite flows")
-    legs0, legs1, legs2 = (tuple(legs[t][i] for t, i in src) for src in (shape.legs0, shape.legs1, shape.legs2))
+    for i, j in shape.pairs:
+        if legs[i].__dict__.get("_dual") is not legs[j] and not legs[i].is_dual_of(legs[j]):
+            ranks = (template.ndim, c0.ndim, c1.ndim, c2.ndim)
+            raise ValueError(f"{_which(i, ranks)} does not match {_which(j, ranks)}: contracted legs need "
+                             "the same sectors and opposite flows")
+    legs0, legs1 = shape.legs0(legs), shape.legs1(legs)
     charge0 = tuple(a + b for a, b in zip(template.charge, c0.charge))
     charge1 = tuple(a + b for a, b in zip(charge0, c1.charge))
     charge2 = tuple(a + b for a, b in zip(charge1, c2.charge))
@@ -160,8 +170,15 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     step = DirectStep(legs1, charge1, tasks, values[entry], zeros, int(flops))
     return ThreeSteps(plan0, step, plan2, (lay_t, lay_0, lay_2, entries))
 
+def _which(flat: int, ranks) -> str:
+    """'leg i of <tensor>' for position ``flat`` of the chain's legs laid end to end."""
+    for name, rank in zip(("the running tensor", "constant 0", "constant 1", "constant 2"), ranks):
+        if flat < rank:
+            return f"leg {flat} of {name}"
+        flat -= rank
+    raise IndexError(flat)
 
-_NAMES = ("the running tensor", "constant 0", "constant 1", "constant 2")
+
 _UNKEPT = (None, None)      # (dest, ld) of a placement the chain does not keep
 
 

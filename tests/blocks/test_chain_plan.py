@@ -6,6 +6,7 @@ from __future__ import annotations
 from unittest import mock
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from test_direct import _dense_chain, three_step_chains  # a sibling test module, imported by plain name
 
@@ -98,3 +99,13 @@ def test_chain_plans_are_reused_by_structure():
     again = PlannedChain(BlockTensor.random(theta.legs, theta.charge, rng=9), steps)
     assert (plan_three_cached.hits, plan_three_cached.misses) == (hits + 1, misses)
     assert again.plans[0] is first.plans[0] and again.directs[1] is first.directs[1]
+
+
+def test_a_mismatched_leg_is_named_by_its_tensor():
+    """A chain whose contracted legs do not match is refused, naming the tensor and leg."""
+    from mps.pipeline.bench import effective_problem
+
+    left, pair, right, theta = effective_problem(16, np.random.default_rng(5))
+    steps = [(left, (0,), (1,), False), (pair, (1, 2, 3), (0, 1, 2), True), (right, (4, 1), (2, 0), True)]
+    with pytest.raises(ValueError, match="leg 3 of the running tensor does not match leg 0 of constant 2"):
+        PlannedChain(theta, steps)
