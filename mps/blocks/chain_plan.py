@@ -138,7 +138,7 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     lay_t, lay_0, lay_1, lay_2 = template.layout, c0.layout, c1.layout, c2.layout
     # every intermediate's legs are some of these and its charge a sum of some of these charges
     if (lay_t.bound + lay_0.bound + lay_1.bound + lay_2.bound
-            + sum(abs(c) for t in (template, c0, c1, c2) for c in t.charge)) >= _BIAS:
+            + sum(map(abs, template.charge + c0.charge + c1.charge + c2.charge))) >= _BIAS:
         return None
     shape = _shape((template.ndim, c0.ndim, c1.ndim, c2.ndim), r0, k0, f0, r1, k1, r2, k2, f2)
     legs = template.legs + c0.legs + c1.legs + c2.legs
