@@ -8,7 +8,15 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from mps.blocks.charges import Leg
-from mps.blocks.contract import COMPILED_GEMM, SMALL_GEMM, contract, plan_contraction, run_plan
+from mps.blocks.contract import (
+    COMPILED_GEMM,
+    SMALL_GEMM,
+    contract,
+    pair_plans,
+    plan_contraction,
+    plan_pair,
+    run_plan,
+)
 from mps.blocks.gemm_kernel import group_products
 from mps.blocks.tensor import BlockTensor
 from mps.blocks.testing import assert_matches_dense, charge_pool_strategy, leg_strategy, total_charge_strategy
@@ -111,6 +119,27 @@ def test_contracting_with_the_conjugate_gives_the_squared_norm(pair):
     axes = tuple(range(a.ndim))
     value = contract(a.conj(), a, axes, axes)
     assert abs(value - a.norm() ** 2) <= TOL * max(1.0, a.norm() ** 2)
+
+
+@FAST
+@given(pair=contraction_pairs(min_shared=1))
+def test_plans_keyed_by_layout_identity_equal_the_plans_keyed_by_legs(pair):
+    """plan_pair (cached by the identities of the operands' layouts) builds the plan
+    plan_contraction builds, meets it again for a new tensor of the same structure, and runs to
+    the same result bit for bit."""
+    a, b, axes_a, axes_b = pair
+    assume(len(axes_a) < a.ndim or len(axes_b) < b.ndim)
+    p = plan_pair(a, b, axes_a, axes_b)
+    q = plan_contraction(a.legs, a.charge, axes_a, b.legs, b.charge, axes_b)
+    assert (p.out_legs, p.out_charge, p.flops, p.packed_size, p.sizes) == (q.out_legs, q.out_charge, q.flops,
+                                                                         q.packed_size, q.sizes)
+    for x, y in ((p.place_a, q.place_a), (p.place_b, q.place_b), (p.place_o, q.place_o)):
+        for name in ("dest", "ld", "keys", "shapes"):
+            np.testing.assert_array_equal(getattr(x, name), getattr(y, name))
+    hits = pair_plans.hits
+    again = BlockTensor.random(a.legs, a.charge, rng=1)
+    assert plan_pair(again, b, axes_a, axes_b) is p and pair_plans.hits == hits + 1
+    np.testing.assert_array_equal(run_plan(p, again, b).data, run_plan(q, again, b).data)
 
 
 @FAST
