@@ -58,9 +58,9 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     axes; the entries of constant 1 as :func:`mps.blocks.direct.contracted_entries` sorts them.
     Returns (step 0's plan arrays without its result's placement, constant 2's placement and
     step 2's other plan arrays, step 2's result's layout and packed legs, step 1's tasks). The
-    planner is called here
-    directly, not through a helper: every level of kernels calling kernels is compiled again
-    with everything below it (3 s of the first run for one helper level)."""
+    planner is called here directly, not through a helper: every level of kernels calling
+    kernels is compiled again with everything below it (3 s of the first run for one helper
+    level)."""
     pa, la, pb, lb = (packed_t, lay_t, packed_0, lay_0) if first0 else (packed_0, lay_0, packed_t, lay_t)
     arr0, packed_o0, keys_o0, shapes_o0, offs_o0 = plan_all(pa, la, pb, lb, ax0[0], ax0[1], ax0[2], ax0[3],
                                                             charge0, shift, bias, limit)
@@ -146,7 +146,7 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     if not legs2:
         return None
     for i, j in shape.pairs:
-        if legs[i].__dict__.get("_dual") is not legs[j] and not legs[i].is_dual_of(legs[j]):
+        if not legs[i].is_dual_of(legs[j]):
             ranks = (template.ndim, c0.ndim, c1.ndim, c2.ndim)
             raise ValueError(f"{_which(i, ranks)} does not match {_which(j, ranks)}: contracted legs need "
                              "the same sectors and opposite flows")
@@ -169,6 +169,7 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     plan2 = wrap_plan(arr2, ax2, *((None, lay_2) if f2 else (lay_2, None)), lay_o2, legs2, charge2)
     step = DirectStep(legs1, charge1, tasks, values[entry], zeros, int(flops))
     return ThreeSteps(plan0, step, plan2, (lay_t, lay_0, lay_2, entries))
+
 
 def _which(flat: int, ranks) -> str:
     """'leg i of <tensor>' for position ``flat`` of the chain's legs laid end to end."""

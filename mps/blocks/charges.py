@@ -126,8 +126,6 @@ class Leg:
             for name, value in (("charges", self.charges), ("sizes", self.sizes), ("flow", -self.flow),
                                 ("_dual", self)):
                 object.__setattr__(d, name, value)
-            if "max_charge" in self.__dict__:     # same sectors: nothing to recompute
-                object.__setattr__(d, "max_charge", self.max_charge)
             object.__setattr__(self, "_dual", d)
         return d
 
@@ -136,7 +134,10 @@ class Leg:
         return np.repeat(self.charge_array, self.sizes, axis=0)
 
     def is_dual_of(self, other: "Leg") -> bool:
-        return self.charges == other.charges and self.sizes == other.sizes and self.flow == -other.flow
+        """Whether ``other`` has the same sectors and the opposite flow (a leg it contracts
+        with); the linked dual of :meth:`dual` is recognised without comparing sectors."""
+        return self.__dict__.get("_dual") is other or (
+            self.charges == other.charges and self.sizes == other.sizes and self.flow == -other.flow)
 
 
 def leg_from_states(state_charges: np.ndarray, flow: int) -> tuple[Leg, np.ndarray]:

@@ -157,8 +157,6 @@ def axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ...
 
 def check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
     for i, j in zip(axes_a, axes_b):
-        if a_legs[i].__dict__.get("_dual") is b_legs[j]:
-            continue            # the linked dual (Leg.dual): nothing to compare
         if not a_legs[i].is_dual_of(b_legs[j]):
             raise ValueError(f"leg {i} of the first tensor does not match leg {j} of the second: "
                              "contracted legs need the same sectors and opposite flows")

@@ -67,7 +67,7 @@ def direct_legs(x_legs: tuple[Leg, ...], x_charge: tuple[int, ...], axes_x: tupl
                 const: BlockTensor, axes_c: tuple[int, ...]) -> tuple[tuple[Leg, ...], tuple[int, ...]]:
     """Legs (free legs of X, then free legs of the constant) and charge of the result."""
     for i, j in zip(axes_x, axes_c):
-        if x_legs[i].__dict__.get("_dual") is not const.legs[j] and not x_legs[i].is_dual_of(const.legs[j]):
+        if not x_legs[i].is_dual_of(const.legs[j]):
             raise ValueError(f"leg {i} of the running tensor does not match leg {j} of the constant")
     legs = (tuple(x for i, x in enumerate(x_legs) if i not in axes_x)
             + tuple(x for i, x in enumerate(const.legs) if i not in axes_c))

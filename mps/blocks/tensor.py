@@ -245,10 +245,8 @@ class BlockTensor:
         if (legs, charge) not in layout.items:
             src = self.layout
             charges, sizes, starts, flows = src.packed or pack_legs(self.legs)
-            lay = layout.put(Layout(legs, charge, src.key_array, src.shape_array, src.offsets,
-                                    (charges, sizes, starts, -flows)))
-            if "bound" in src.__dict__:
-                lay.bound = src.bound       # the same charges, with the other flows
+            layout.put(Layout(legs, charge, src.key_array, src.shape_array, src.offsets,
+                              (charges, sizes, starts, -flows)))
         return BlockTensor(legs, charge, self.data.conj())
 
     def _check_same(self, other: "BlockTensor") -> None:
