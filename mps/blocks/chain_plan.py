@@ -17,14 +17,13 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 from functools import lru_cache
-from operator import itemgetter
 from typing import NamedTuple
 
 import numpy as np
 from numba import njit
 
 from mps.blocks.charges import _BIAS, _SHIFT
-from mps.blocks.contract import COMPILED_GEMM, Axes, ContractionPlan, axis_split, wrap_plan
+from mps.blocks.contract import COMPILED_GEMM, Axes, ContractionPlan, axis_split, picker, wrap_plan
 from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_tasks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import _join, plan_all, select_legs
@@ -57,19 +56,20 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     middle axes of A, middle axes and columns of B; ``out0``: step 0's result's row and column
     axes; the entries of constant 1 as :func:`mps.blocks.direct.contracted_entries` sorts them.
     Returns (step 0's plan arrays without its result's placement, constant 2's placement and
-    step 2's other plan arrays, step 2's result's layout and packed legs, step 1's tasks). The
+    step 2's other plan arrays, step 2's result's layout with its packed legs and charge bound,
+    step 1's tasks). The
     planner is called here directly, not through a helper: every level of kernels calling
     kernels is compiled again with everything below it (3 s of the first run for one helper
     level)."""
     pa, la, pb, lb = (packed_t, lay_t, packed_0, lay_0) if first0 else (packed_0, lay_0, packed_t, lay_t)
-    arr0, packed_o0, keys_o0, shapes_o0, offs_o0 = plan_all(pa, la, pb, lb, ax0[0], ax0[1], ax0[2], ax0[3],
+    arr0, packed_o0, keys_o0, shapes_o0, offs_o0, _ = plan_all(pa, la, pb, lb, ax0[0], ax0[1], ax0[2], ax0[3],
                                                             charge0, shift, bias, limit)
     packed_d = _join(select_legs(packed_o0, free_x), select_legs(packed_1, free_c))
     keys_d, shapes_d, offs_d = allowed_blocks(packed_d[0], packed_d[1], packed_d[2], packed_d[3], charge1,
                                               shift, bias)
     lay_d = (keys_d, shapes_d, offs_d)
     pa, la, pb, lb = (packed_d, lay_d, packed_2, lay_2) if first2 else (packed_2, lay_2, packed_d, lay_d)
-    arr2, packed_o2, keys_o2, shapes_o2, offs_o2 = plan_all(pa, la, pb, lb, ax2[0], ax2[1], ax2[2], ax2[3],
+    arr2, packed_o2, keys_o2, shapes_o2, offs_o2, bound2 = plan_all(pa, la, pb, lb, ax2[0], ax2[1], ax2[2], ax2[3],
                                                             charge2, shift, bias, limit)
     starts = packed_d[2]
     r = len(starts) - 1
@@ -90,7 +90,7 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     # 0's result placement nor step 2's running operand's, which the tasks hold
     keep0 = (arr0[0], arr0[1], arr0[2], arr0[3]) + arr0[6:]
     const2 = (arr2[2], arr2[3]) if first2 else (arr2[0], arr2[1])
-    return keep0, const2 + arr2[4:], (keys_o2, shapes_o2, offs_o2), packed_o2, tasks
+    return keep0, const2 + arr2[4:], (keys_o2, shapes_o2, offs_o2, packed_o2, bound2), tasks
 
 
 class _Shape(NamedTuple):
@@ -106,11 +106,6 @@ class _Shape(NamedTuple):
     legs1: Callable
     legs2: Callable
     pairs: tuple[tuple[int, int], ...]
-
-
-def _picker(idx: tuple[int, ...]) -> Callable:
-    """A function returning the items ``idx`` of a sequence as a tuple."""
-    return itemgetter(*idx) if len(idx) > 1 else (lambda seq: tuple(seq[i] for i in idx))
 
 
 @lru_cache(maxsize=256)
@@ -129,16 +124,15 @@ def _shape(ranks: tuple[int, int, int, int], r0, k0, f0: bool, r1, k1, r2, k2, f
     ax2 = axis_split(len(legs1), r2, n2, k2) if f2 else axis_split(n2, k2, len(legs1), r2)
     a, b = (legs1, c2) if f2 else (c2, legs1)
     legs2 = tuple(a[i] for i in ax2.free_a) + tuple(b[i] for i in ax2.free_b)
-    return _Shape(ax0, x_axes, ax2, _picker(legs0), _picker(legs1), _picker(legs2) if legs2 else (lambda seq: ()),
-                  tuple(pairs))
+    return _Shape(ax0, x_axes, ax2, picker(legs0), picker(legs1), picker(legs2), tuple(pairs))
 
 
 def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     (c0, r0, k0, f0), (c1, r1, k1, _), (c2, r2, k2, f2) = steps
     lay_t, lay_0, lay_1, lay_2 = template.layout, c0.layout, c1.layout, c2.layout
+    charges = _chain_charges(template.charge, c0.charge, c1.charge, c2.charge)
     # every intermediate's legs are some of these and its charge a sum of some of these charges
-    if (lay_t.bound + lay_0.bound + lay_1.bound + lay_2.bound
-            + sum(map(abs, template.charge + c0.charge + c1.charge + c2.charge))) >= _BIAS:
+    if lay_t.bound + lay_0.bound + lay_1.bound + lay_2.bound + charges.magnitude >= _BIAS:
         return None
     shape = _shape((template.ndim, c0.ndim, c1.ndim, c2.ndim), r0, k0, f0, r1, k1, r2, k2, f2)
     legs = template.legs + c0.legs + c1.legs + c2.legs
@@ -151,17 +145,15 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
             raise ValueError(f"{_which(i, ranks)} does not match {_which(j, ranks)}: contracted legs need "
                              "the same sectors and opposite flows")
     legs0, legs1 = shape.legs0(legs), shape.legs1(legs)
-    charge0 = tuple(a + b for a, b in zip(template.charge, c0.charge))
-    charge1 = tuple(a + b for a, b in zip(charge0, c1.charge))
-    charge2 = tuple(a + b for a, b in zip(charge1, c2.charge))
+    charge0, charge1, charge2 = charges.totals
     ax0, ax2 = shape.ax0, shape.ax2
     free_c, con_c, con_radix, e_keys, e_offs, values = contracted_entries(entries, c1, k1)
-    arr0, arr2, lo2, packed2, (entry, tasks, zeros, flops) = plan_three(
-        lay_t.packed, _arrays(lay_t), lay_0.packed, _arrays(lay_0), f0, ax0[2:6], _charge(charge0),
+    arr0, arr2, lo2, (entry, tasks, zeros, flops) = plan_three(
+        lay_t.packed, _arrays(lay_t), lay_0.packed, _arrays(lay_0), f0, ax0[2:6], charges.arrays[0],
         ax0[6:8], lay_1.packed, shape.x_axes.rows_a, shape.x_axes.mids_a, e_keys, e_offs, free_c, con_c,
-        con_radix, _charge(charge1), lay_2.packed, _arrays(lay_2), f2, ax2[2:6], _charge(charge2),
+        con_radix, charges.arrays[1], lay_2.packed, _arrays(lay_2), f2, ax2[2:6], charges.arrays[2],
         _SHIFT, _BIAS, COMPILED_GEMM)
-    lay_o2 = layout.offer(Layout(legs2, charge2, *lo2, packed2))
+    lay_o2 = layout.offer(legs2, charge2, *lo2)
     plan0 = wrap_plan(arr0[:4] + _UNKEPT + arr0[4:], ax0, *((lay_t, lay_0) if f0 else (lay_0, lay_t)), None,
                       legs0, charge0)
     const2 = arr2[:2]
@@ -187,9 +179,21 @@ def _arrays(lay: Layout):
     return lay.key_array, lay.shape_array, lay.offsets
 
 
+class _Charges(NamedTuple):
+    totals: tuple           # the charges of the three steps' results
+    arrays: tuple           # the same as int64 arrays
+    magnitude: int          # sum of |component| over the four tensors' charges
+
+
 @lru_cache(maxsize=256)
-def _charge(charge: tuple[int, ...]) -> np.ndarray:
-    return np.array(charge, dtype=np.int64)
+def _chain_charges(*charges: tuple[int, ...]) -> _Charges:
+    """Charges of a chain's three results from those of its running tensor and constants."""
+    totals, acc = [], charges[0]
+    for c in charges[1:]:
+        acc = tuple(a + b for a, b in zip(acc, c))
+        totals.append(acc)
+    return _Charges(tuple(totals), tuple(np.array(t, dtype=np.int64) for t in totals),
+                    sum(abs(c) for q in charges for c in q))
 
 
 class _Cache(PlanCache):

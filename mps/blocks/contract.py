@@ -12,8 +12,10 @@ applies the same operator many times pays for it once.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from functools import cached_property, lru_cache
+from operator import itemgetter
 from typing import NamedTuple
 
 import numpy as np
@@ -140,6 +142,14 @@ class Axes(NamedTuple):
     cols_b: np.ndarray
     rows_o: np.ndarray
     cols_o: np.ndarray
+    out_legs: Callable      # the result's legs from A's legs followed by B's
+
+
+def picker(idx: tuple[int, ...]) -> Callable:
+    """A function returning the items ``idx`` of a sequence as a tuple."""
+    if len(idx) > 1:
+        return itemgetter(*idx)
+    return (lambda seq: (seq[idx[0]],)) if idx else (lambda seq: ())
 
 
 @lru_cache(maxsize=1024)
@@ -152,7 +162,8 @@ def axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ...
     free_b = tuple(i for i in range(nb) if i not in axes_b)
     nfree = len(free_a) + len(free_b)
     return Axes(free_a, free_b, _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b),
-                 _axes(tuple(range(len(free_a)))), _axes(tuple(range(len(free_a), nfree))))
+                _axes(tuple(range(len(free_a)))), _axes(tuple(range(len(free_a), nfree))),
+                picker(free_a + tuple(na + i for i in free_b)))
 
 
 def check_pairs(a_legs, axes_a, b_legs, axes_b) -> None:
@@ -181,10 +192,10 @@ def _plan_layouts(lay_a: Layout, axes_a: tuple[int, ...], lay_b: Layout, axes_b:
     free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
     if out_legs and in_range(out_legs, out_charge):
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
-        arrays, packed_o, keys_o, shapes_o, offs_o = plan_all(
+        arrays, *lo = plan_all(
             lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
-            np.array(out_charge, dtype=np.int64), _SHIFT, _BIAS, COMPILED_GEMM)
-        lay_o = layout.offer(Layout(out_legs, out_charge, keys_o, shapes_o, offs_o, packed_o))
+            charge_array(out_charge), _SHIFT, _BIAS, COMPILED_GEMM)
+        lay_o = layout.offer(out_legs, out_charge, lo[1], lo[2], lo[3], lo[0], lo[4])
     else:
         # a scalar result, or charges too large (the layout raises the error)
         k = a_legs[0].nq
@@ -203,8 +214,13 @@ def result_structure(a_legs, a_charge, axes_a, b_legs, b_charge, axes_b) -> tupl
     contracting legs ``axes_a`` of A with legs ``axes_b`` of B."""
     ax = axis_split(len(a_legs), tuple(axes_a), len(b_legs), tuple(axes_b))
     check_pairs(a_legs, axes_a, b_legs, axes_b)
-    out_legs = tuple(a_legs[i] for i in ax.free_a) + tuple(b_legs[i] for i in ax.free_b)
-    return ax, out_legs, tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
+    return ax, ax.out_legs(a_legs + b_legs), total_charge(a_charge, b_charge)
+
+
+@lru_cache(maxsize=1024)
+def total_charge(a_charge: tuple[int, ...], b_charge: tuple[int, ...]) -> tuple[int, ...]:
+    """The charge of a product of tensors of charges ``a_charge`` and ``b_charge``."""
+    return tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
 
 
 def in_range(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> bool:
@@ -240,6 +256,10 @@ def _arrays(lay) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 @lru_cache(maxsize=1024)
 def _axes(axes: tuple[int, ...]) -> np.ndarray:
     return np.array(axes, dtype=np.int64)
+
+
+charge_array = _axes
+"""A total charge as the int64 array the compiled planners take (cached)."""
 
 
 plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)

@@ -23,7 +23,7 @@ import numpy as np
 import scipy.linalg as sla
 from numba import njit
 
-from mps.blocks.charges import FusionMap, Leg, fuse, pack_legs
+from mps.blocks.charges import FusionMap, Leg, charge_bound, fuse, pack_legs
 from mps.blocks.cores import map_sectors
 from mps.blocks.factor_kernel import left_factor_blocks, right_factor_blocks
 from mps.blocks.kernels import leg_positions, pack_into, unpack_blocks
@@ -154,7 +154,7 @@ def _assembled(legs, charge, blocks) -> BlockTensor:
     the layout cache unless already there (it is the same layout, found by a search)."""
     keys, shapes, offsets, data = blocks
     if (legs, charge) not in layout.items:
-        layout.put(Layout(legs, charge, keys, shapes, offsets, pack_legs(legs)))
+        layout.put(Layout(legs, charge, keys, shapes, offsets, pack_legs(legs), charge_bound(legs)))
     return BlockTensor(legs, charge, data)
 
 

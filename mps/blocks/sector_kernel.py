@@ -25,6 +25,20 @@ def charge_keys(charges, shift, bias):  # pragma: no cover - compiled
     return out
 
 
+@njit(cache=True, nogil=True, inline="always")
+def packed_bound(charges, starts):  # pragma: no cover - compiled
+    """Largest |combined charge| a combination of sectors of packed legs can reach: the sum over
+    legs of their largest |charge component| (:func:`mps.blocks.charges.charge_bound`)."""
+    total = 0
+    for i in range(len(starts) - 1):
+        big = 0
+        for j in range(starts[i], starts[i + 1]):
+            for c in range(charges.shape[1]):
+                big = max(big, abs(charges[j, c]))
+        total += big
+    return total
+
+
 @njit(cache=True, nogil=True)
 def _next_combo(digits, nsec, upto):  # pragma: no cover - compiled
     """Advance a mixed-radix odometer over legs 0..upto-1 (last leg fastest); False when done."""

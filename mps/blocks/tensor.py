@@ -37,7 +37,8 @@ class Layout:
     key_array: np.ndarray
     shape_array: np.ndarray
     offsets: np.ndarray
-    packed: tuple = ()      # the legs as flat arrays (:func:`mps.blocks.charges.pack_legs`)
+    packed: tuple           # the legs as flat arrays (:func:`mps.blocks.charges.pack_legs`)
+    bound: int              # largest |combined charge| of a combination of sectors of the legs
 
     @property
     def size(self) -> int:
@@ -46,11 +47,6 @@ class Layout:
     @property
     def nblocks(self) -> int:
         return len(self.key_array)
-
-    @cached_property
-    def bound(self) -> int:
-        """Largest |combined charge| a combination of sectors of the legs can reach."""
-        return charge_bound(self.legs)
 
     @cached_property
     def keys(self) -> tuple[tuple[int, ...], ...]:
@@ -76,9 +72,7 @@ def _build_layout(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> Layout:
         raise ValueError(f"charges must be smaller than {_BIAS} in magnitude")
     packed = pack_legs(legs)
     keys, shapes, offsets = allowed_blocks(*packed, np.asarray(charge, dtype=np.int64), _SHIFT, _BIAS)
-    lay = Layout(legs, tuple(charge), keys, shapes, offsets, packed)
-    lay.bound = bound                   # the cached property, already known
-    return lay
+    return Layout(legs, tuple(charge), keys, shapes, offsets, packed, bound)
 
 
 class _LayoutCache:
@@ -100,11 +94,12 @@ class _LayoutCache:
             pass
         return lay
 
-    def offer(self, lay: Layout) -> Layout:
-        """The cached layout of ``lay``'s structure if there is one (layouts of one structure are
-        equal, and callers may key on a layout's identity), else ``lay``, now cached."""
-        held = self.items.get((lay.legs, lay.charge))
-        return self.put(lay) if held is None else held
+    def offer(self, legs: tuple[Leg, ...], charge: tuple[int, ...], *parts) -> Layout:
+        """The cached layout of structure (legs, charge) if there is one (layouts of one structure
+        are equal, and callers may key on a layout's identity), else the layout of ``parts``
+        (keys, shapes, offsets, packed legs, charge bound: a planner computed them), now cached."""
+        held = self.items.get((legs, charge))
+        return self.put(Layout(legs, charge, *parts)) if held is None else held
 
     def put(self, lay: Layout) -> Layout:
         self.items[(lay.legs, lay.charge)] = lay
@@ -246,7 +241,7 @@ class BlockTensor:
             src = self.layout
             charges, sizes, starts, flows = src.packed or pack_legs(self.legs)
             layout.put(Layout(legs, charge, src.key_array, src.shape_array, src.offsets,
-                              (charges, sizes, starts, -flows)))
+                              (charges, sizes, starts, -flows), src.bound))
         return BlockTensor(legs, charge, self.data.conj())
 
     def _check_same(self, other: "BlockTensor") -> None:

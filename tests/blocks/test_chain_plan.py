@@ -13,8 +13,8 @@ from test_direct import _dense_chain, three_step_chains  # a sibling test module
 from mps.blocks import direct
 from mps.blocks.chain import PlannedChain
 from mps.blocks.chain_plan import plan_three_cached
-from mps.blocks.charges import Leg
-from mps.blocks.tensor import BlockTensor
+from mps.blocks.charges import Leg, charge_bound
+from mps.blocks.tensor import BlockTensor, layout
 from mps.blocks.testing import assert_matches_dense
 
 FAST = settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -46,8 +46,14 @@ def test_one_call_plans_equal_the_step_by_step_plans(case):
     with mock.patch.object(direct, "DIRECT_REUSE", np.inf):
         assume(np.any(steps[1][0].data))
         asked = plan_three_cached.hits + plan_three_cached.misses
+        layout.cache_clear()        # the result's layout is then the one the one-call planner built
         together = PlannedChain(t, steps)
         assert plan_three_cached.hits + plan_three_cached.misses == asked + 1
+        built = layout(together.out_legs, together.out_charge)
+        layout.cache_clear()
+        fresh = layout(together.out_legs, together.out_charge)
+        assert built is not fresh and built.bound == fresh.bound == charge_bound(together.out_legs)
+        np.testing.assert_array_equal(built.key_array, fresh.key_array)
         apart = PlannedChain(t, steps, together=False)
     assert together.plans[0] is not apart.plans[0]
     assert 1 in together.directs and 1 in apart.directs

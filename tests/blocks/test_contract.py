@@ -7,7 +7,7 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from mps.blocks.charges import Leg
+from mps.blocks.charges import Leg, charge_bound
 from mps.blocks.contract import (
     COMPILED_GEMM,
     SMALL_GEMM,
@@ -18,7 +18,7 @@ from mps.blocks.contract import (
     run_plan,
 )
 from mps.blocks.gemm_kernel import group_products
-from mps.blocks.tensor import BlockTensor
+from mps.blocks.tensor import BlockTensor, layout
 from mps.blocks.testing import assert_matches_dense, charge_pool_strategy, leg_strategy, total_charge_strategy
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
@@ -140,6 +140,23 @@ def test_plans_keyed_by_layout_identity_equal_the_plans_keyed_by_legs(pair):
     again = BlockTensor.random(a.legs, a.charge, rng=1)
     assert plan_pair(again, b, axes_a, axes_b) is p and pair_plans.hits == hits + 1
     np.testing.assert_array_equal(run_plan(p, again, b).data, run_plan(q, again, b).data)
+
+
+@given(pair=contraction_pairs(min_shared=1))
+def test_a_result_layout_from_the_planner_carries_its_legs_charge_bound(pair):
+    """The compiled planner builds the result's layout and its charge bound from packed legs;
+    both equal what the layout cache builds from the legs themselves."""
+    a, b, axes_a, axes_b = pair
+    assume(len(axes_a) < a.ndim or len(axes_b) < b.ndim)
+    plan_contraction.cache_clear()
+    layout.cache_clear()
+    plan = plan_contraction(a.legs, a.charge, axes_a, b.legs, b.charge, axes_b)
+    lay = layout(plan.out_legs, plan.out_charge)
+    layout.cache_clear()
+    fresh = layout(plan.out_legs, plan.out_charge)
+    assert lay is not fresh and lay.bound == fresh.bound == charge_bound(plan.out_legs)
+    for name in ("key_array", "shape_array", "offsets"):
+        np.testing.assert_array_equal(getattr(lay, name), getattr(fresh, name))
 
 
 @FAST
