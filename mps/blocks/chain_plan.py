@@ -56,21 +56,20 @@ def plan_three(packed_t, lay_t, packed_0, lay_0, first0, ax0, charge0, out0, pac
     middle axes of A, middle axes and columns of B; ``out0``: step 0's result's row and column
     axes; the entries of constant 1 as :func:`mps.blocks.direct.contracted_entries` sorts them.
     Returns (step 0's plan arrays without its result's placement, constant 2's placement and
-    step 2's other plan arrays, step 2's result's layout with its packed legs and charge bound,
-    step 1's tasks). The
-    planner is called here directly, not through a helper: every level of kernels calling
-    kernels is compiled again with everything below it (3 s of the first run for one helper
-    level)."""
+    step 2's other plan arrays, step 2's result's layout as :func:`plan_all` returns it, step 1's
+    tasks). The planner is called here directly, not through a helper: every level of kernels
+    calling kernels is compiled again with everything below it (3 s of the first run for one
+    helper level)."""
     pa, la, pb, lb = (packed_t, lay_t, packed_0, lay_0) if first0 else (packed_0, lay_0, packed_t, lay_t)
-    arr0, packed_o0, keys_o0, shapes_o0, offs_o0, _ = plan_all(pa, la, pb, lb, ax0[0], ax0[1], ax0[2], ax0[3],
-                                                            charge0, shift, bias, limit)
+    arr0, keys_o0, shapes_o0, offs_o0, packed_o0, _ = plan_all(pa, la, pb, lb, ax0[0], ax0[1], ax0[2], ax0[3],
+                                                               charge0, shift, bias, limit)
     packed_d = _join(select_legs(packed_o0, free_x), select_legs(packed_1, free_c))
     keys_d, shapes_d, offs_d = allowed_blocks(packed_d[0], packed_d[1], packed_d[2], packed_d[3], charge1,
                                               shift, bias)
     lay_d = (keys_d, shapes_d, offs_d)
     pa, la, pb, lb = (packed_d, lay_d, packed_2, lay_2) if first2 else (packed_2, lay_2, packed_d, lay_d)
-    arr2, packed_o2, keys_o2, shapes_o2, offs_o2, bound2 = plan_all(pa, la, pb, lb, ax2[0], ax2[1], ax2[2], ax2[3],
-                                                            charge2, shift, bias, limit)
+    arr2, keys_o2, shapes_o2, offs_o2, packed_o2, bound2 = plan_all(pa, la, pb, lb, ax2[0], ax2[1], ax2[2], ax2[3],
+                                                                    charge2, shift, bias, limit)
     starts = packed_d[2]
     r = len(starts) - 1
     radix = np.ones(r, np.int64)

@@ -192,10 +192,10 @@ def _plan_layouts(lay_a: Layout, axes_a: tuple[int, ...], lay_b: Layout, axes_b:
     free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
     if out_legs and in_range(out_legs, out_charge):
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
-        arrays, *lo = plan_all(
+        arrays, *parts = plan_all(
             lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
             charge_array(out_charge), _SHIFT, _BIAS, COMPILED_GEMM)
-        lay_o = layout.offer(out_legs, out_charge, lo[1], lo[2], lo[3], lo[0], lo[4])
+        lay_o = layout.offer(out_legs, out_charge, *parts)
     else:
         # a scalar result, or charges too large (the layout raises the error)
         k = a_legs[0].nq

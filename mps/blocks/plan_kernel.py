@@ -190,9 +190,10 @@ def plan_all(packed_a, lay_a, packed_b, lay_b, free_a, axes_a, axes_b, free_b, o
              shift, bias, limit):  # pragma: no cover - compiled
     """Everything :func:`plan_places` needs, computed here from the operands' packed legs and
     layouts: the three fusions (A's free legs, the contracted legs, B's free legs) and the
-    result's layout; returns the plan's arrays (:func:`plan_arrays`), the result's packed legs,
-    its layout (keys, shapes, offsets) and its legs' charge bound (:func:`packed_bound`). One
-    compiled call instead of six with Python in between."""
+    result's layout; returns the plan's arrays (:func:`plan_arrays`), then the result's layout
+    as :class:`mps.blocks.tensor.Layout` takes it: keys, shapes, offsets, packed legs and their
+    charge bound (:func:`packed_bound`). One compiled call instead of six with Python in
+    between."""
     rows = select_legs(packed_a, free_a)
     cols = select_legs(packed_b, free_b)
     f_row = _fusion_arrays(rows, shift, bias)
@@ -202,7 +203,7 @@ def plan_all(packed_a, lay_a, packed_b, lay_b, free_a, axes_a, axes_b, free_b, o
     keys_o, shapes_o, offs_o = allowed_blocks(out[0], out[1], out[2], out[3], out_charge, shift, bias)
     res = plan_places(lay_a, free_a, axes_a, lay_b, axes_b, free_b, (keys_o, shapes_o, offs_o), len(free_a),
                       f_row, f_mid, f_col)
-    return plan_arrays(res, limit), out, keys_o, shapes_o, offs_o, packed_bound(out[0], out[2])
+    return plan_arrays(res, limit), keys_o, shapes_o, offs_o, out, packed_bound(out[0], out[2])
 
 
 @njit(cache=True, nogil=True)
