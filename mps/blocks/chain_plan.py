@@ -23,7 +23,16 @@ import numpy as np
 from numba import njit
 
 from mps.blocks.charges import _BIAS, _SHIFT
-from mps.blocks.contract import COMPILED_GEMM, Axes, ContractionPlan, axis_split, picker, wrap_plan
+from mps.blocks.contract import (
+    COMPILED_GEMM,
+    Axes,
+    ContractionPlan,
+    axis_split,
+    int_array,
+    picker,
+    total_charge,
+    wrap_plan,
+)
 from mps.blocks.direct import DirectStep, Entries, contracted_entries, direct_tasks
 from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import _join, plan_all, select_legs
@@ -189,10 +198,9 @@ def _chain_charges(*charges: tuple[int, ...]) -> _Charges:
     """Charges of a chain's three results from those of its running tensor and constants."""
     totals, acc = [], charges[0]
     for c in charges[1:]:
-        acc = tuple(a + b for a, b in zip(acc, c))
+        acc = total_charge(acc, c)
         totals.append(acc)
-    return _Charges(tuple(totals), tuple(np.array(t, dtype=np.int64) for t in totals),
-                    sum(abs(c) for q in charges for c in q))
+    return _Charges(tuple(totals), tuple(map(int_array, totals)), sum(abs(c) for q in charges for c in q))
 
 
 class _Cache(PlanCache):

@@ -20,7 +20,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from mps.blocks.charges import _BIAS, _SHIFT, FusionMap, Leg, charge_bound, fuse
+from mps.blocks.charges import _BIAS, _SHIFT, FusionMap, Leg, fuse
 from mps.blocks.gemm_kernel import group_products
 from mps.blocks.kernels import pack_blocks, unpack_blocks
 from mps.blocks.plan_cache import PlanCache
@@ -161,8 +161,8 @@ def axis_split(na: int, axes_a: tuple[int, ...], nb: int, axes_b: tuple[int, ...
     free_a = tuple(i for i in range(na) if i not in axes_a)
     free_b = tuple(i for i in range(nb) if i not in axes_b)
     nfree = len(free_a) + len(free_b)
-    return Axes(free_a, free_b, _axes(free_a), _axes(axes_a), _axes(axes_b), _axes(free_b),
-                _axes(tuple(range(len(free_a)))), _axes(tuple(range(len(free_a), nfree))),
+    return Axes(free_a, free_b, int_array(free_a), int_array(axes_a), int_array(axes_b), int_array(free_b),
+                int_array(tuple(range(len(free_a)))), int_array(tuple(range(len(free_a), nfree))),
                 picker(free_a + tuple(na + i for i in free_b)))
 
 
@@ -190,14 +190,15 @@ def _plan_layouts(lay_a: Layout, axes_a: tuple[int, ...], lay_b: Layout, axes_b:
     a_legs, b_legs = lay_a.legs, lay_b.legs
     ax, out_legs, out_charge = result_structure(a_legs, lay_a.charge, axes_a, b_legs, lay_b.charge, axes_b)
     free_a, free_b, rows_a, mids_a, mids_b, cols_b = ax[:6]
-    if out_legs and in_range(out_legs, out_charge):
+    if out_legs and in_range(lay_a, lay_b):
         # one compiled call: fusions, the result's layout (handed to the layout cache) and places
         arrays, *parts = plan_all(
             lay_a.packed, _arrays(lay_a), lay_b.packed, _arrays(lay_b), rows_a, mids_a, mids_b, cols_b,
-            charge_array(out_charge), _SHIFT, _BIAS, COMPILED_GEMM)
+            int_array(out_charge), _SHIFT, _BIAS, COMPILED_GEMM)
         lay_o = layout.offer(out_legs, out_charge, *parts)
     else:
-        # a scalar result, or charges too large (the layout raises the error)
+        # a scalar result, or charges that may not fit the compiled keys (the layout raises the
+        # error if the result's do not)
         k = a_legs[0].nq
         fa = _fusion(tuple(a_legs[i] for i in free_a), k)
         fb = _fusion(tuple(b_legs[i] for i in free_b), k)
@@ -223,9 +224,10 @@ def total_charge(a_charge: tuple[int, ...], b_charge: tuple[int, ...]) -> tuple[
     return tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
 
 
-def in_range(legs: tuple[Leg, ...], charge: tuple[int, ...]) -> bool:
-    """Whether every combined charge of ``legs`` and ``charge`` fits the compiled charge keys."""
-    return charge_bound(legs) + max(map(abs, charge)) < _BIAS
+def in_range(lay_a: Layout, lay_b: Layout) -> bool:
+    """Whether every combined charge the compiled planner forms (fusions of A's and B's legs,
+    the result's blocks) fits its charge keys: the layouts' bounds and both total charges."""
+    return lay_a.bound + lay_b.bound + sum(map(abs, lay_a.charge + lay_b.charge)) < _BIAS
 
 
 def wrap_plan(arrays, ax: Axes, lay_a: Layout, lay_b: Layout, lay_o: Layout | None,
@@ -254,12 +256,9 @@ def _arrays(lay) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 @lru_cache(maxsize=1024)
-def _axes(axes: tuple[int, ...]) -> np.ndarray:
-    return np.array(axes, dtype=np.int64)
-
-
-charge_array = _axes
-"""A total charge as the int64 array the compiled planners take (cached)."""
+def int_array(values: tuple[int, ...]) -> np.ndarray:
+    """Axes or a total charge as the int64 array the compiled planners take (cached)."""
+    return np.array(values, dtype=np.int64)
 
 
 plan_contraction = PlanCache(_build_plan, max_bytes=256 << 20)
