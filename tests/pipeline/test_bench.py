@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import subprocess
+import sys
+
 from mps.pipeline.bench import SweepCase, _sweep_worker
 
 
@@ -28,3 +31,16 @@ def test_single_site_sweep_of_a_large_local_space_is_counted_too():
     fig = box.item
     assert fig["update"] == "single-site" and fig["family"] == "complex-scalar"
     assert fig["gflop"] > 0 and 0 < fig["flop_fraction"] < 1
+
+
+def test_warm_up_compiles_the_sweep_kernels_before_any_timing():
+    # a fresh interpreter: no kernel has been called (compiled or loaded from cache) yet
+    code = ("from mps.blocks.direct import direct_apply\n"
+            "from mps.solver.krylov import _extend\n"
+            "from mps.pipeline.bench import compile_kernels\n"
+            "before = len(direct_apply.signatures) + len(_extend.signatures)\n"
+            "compile_kernels()\n"
+            "print(before, len(direct_apply.signatures), len(_extend.signatures))\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    before, direct, krylov = map(int, out.stdout.split())
+    assert before == 0 and direct >= 1 and krylov >= 1
