@@ -239,7 +239,7 @@ class BlockTensor:
         legs, charge = tuple(leg.dual() for leg in self.legs), tuple(-c for c in self.charge)
         if (legs, charge) not in layout.items:
             src = self.layout
-            charges, sizes, starts, flows = src.packed or pack_legs(self.legs)
+            charges, sizes, starts, flows = src.packed
             layout.put(Layout(legs, charge, src.key_array, src.shape_array, src.offsets,
                               (charges, sizes, starts, -flows), src.bound))
         return BlockTensor(legs, charge, self.data.conj())
