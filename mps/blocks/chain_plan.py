@@ -28,6 +28,7 @@ from mps.blocks.contract import (
     Axes,
     ContractionPlan,
     axis_split,
+    in_range,
     int_array,
     picker,
     total_charge,
@@ -140,7 +141,7 @@ def _build(template: BlockTensor, steps, entries: Entries) -> ThreeSteps | None:
     lay_t, lay_0, lay_1, lay_2 = template.layout, c0.layout, c1.layout, c2.layout
     charges = _chain_charges(template.charge, c0.charge, c1.charge, c2.charge)
     # every intermediate's legs are some of these and its charge a sum of some of these charges
-    if lay_t.bound + lay_0.bound + lay_1.bound + lay_2.bound + charges.magnitude >= _BIAS:
+    if not in_range(lay_t, lay_0, lay_1, lay_2):
         return None
     shape = _shape((template.ndim, c0.ndim, c1.ndim, c2.ndim), r0, k0, f0, r1, k1, r2, k2, f2)
     legs = template.legs + c0.legs + c1.legs + c2.legs
@@ -190,7 +191,6 @@ def _arrays(lay: Layout):
 class _Charges(NamedTuple):
     totals: tuple           # the charges of the three steps' results
     arrays: tuple           # the same as int64 arrays
-    magnitude: int          # sum of |component| over the four tensors' charges
 
 
 @lru_cache(maxsize=256)
@@ -200,7 +200,7 @@ def _chain_charges(*charges: tuple[int, ...]) -> _Charges:
     for c in charges[1:]:
         acc = total_charge(acc, c)
         totals.append(acc)
-    return _Charges(tuple(totals), tuple(map(int_array, totals)), sum(abs(c) for q in charges for c in q))
+    return _Charges(tuple(totals), tuple(map(int_array, totals)))
 
 
 class _Cache(PlanCache):

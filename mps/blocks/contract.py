@@ -224,10 +224,11 @@ def total_charge(a_charge: tuple[int, ...], b_charge: tuple[int, ...]) -> tuple[
     return tuple(int(a) + int(b) for a, b in zip(a_charge, b_charge))
 
 
-def in_range(lay_a: Layout, lay_b: Layout) -> bool:
-    """Whether every combined charge the compiled planner forms (fusions of A's and B's legs,
-    the result's blocks) fits its charge keys: the layouts' bounds and both total charges."""
-    return lay_a.bound + lay_b.bound + sum(map(abs, lay_a.charge + lay_b.charge)) < _BIAS
+def in_range(*lays: Layout) -> bool:
+    """Whether every combined charge a compiled planner forms from these tensors (fusions of
+    their legs, the blocks of every result) fits its charge keys: the layouts' bounds plus all
+    their total charges."""
+    return sum(lay.bound + sum(map(abs, lay.charge)) for lay in lays) < _BIAS
 
 
 def wrap_plan(arrays, ax: Axes, lay_a: Layout, lay_b: Layout, lay_o: Layout | None,
