@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 import yaml
 
-from tests import reference_ed as ed
+import reference_ed as ed
 
 
 def cli(*args):
