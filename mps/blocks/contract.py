@@ -27,9 +27,11 @@ from mps.blocks.plan_cache import PlanCache
 from mps.blocks.plan_kernel import plan_all, plan_arrays, plan_places
 from mps.blocks.tensor import BlockTensor, Layout, layout
 
-SMALL_GEMM = 2048
-"""Largest group (multiply-adds) done by a plain compiled loop: measured crossover with one
-numpy matmul call per group on the development machine lies between 12^3 and 16^3."""
+SMALL_GEMM = 400
+"""Largest group (multiply-adds) done by a plain compiled loop instead of one BLAS call from
+compiled code: measured on the development machine (AVX-512 Xeon), the loop is faster up to
+6^3 and for flat shapes such as 2 x 8 x 30, one BLAS call from 8^3 on (0.32 against 0.43 us)
+and twice as fast at 10^3 (on the earlier AMD machine the crossover lay between 12^3 and 16^3)."""
 
 COMPILED_GEMM = 64**3
 """Largest group (multiply-adds) multiplied from compiled code (:func:`mps.blocks.gemm_kernel.

@@ -28,12 +28,12 @@ def group_products(pa, pb, pc, groups, loop_limit):  # pragma: no cover - compil
             np.dot(pa[sa:sa + nr * nm].reshape((nr, nm)), pb[sb:sb + nm * nc].reshape((nm, nc)),
                    pc[sc:sc + nr * nc].reshape((nr, nc)))
             continue
-        for i in range(nr):
-            row = sc + i * nc
+        for i in range(nr):               # slices: the compiler vectorises the inner loop
+            crow = pc[sc + i * nc:sc + (i + 1) * nc]
             for j in range(nc):
-                pc[row + j] = 0
+                crow[j] = 0
             for k in range(nm):
                 aik = pa[sa + i * nm + k]
-                col = sb + k * nc
+                brow = pb[sb + k * nc:sb + (k + 1) * nc]
                 for j in range(nc):
-                    pc[row + j] += aik * pb[col + j]
+                    crow[j] += aik * brow[j]
