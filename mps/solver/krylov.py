@@ -47,16 +47,21 @@ def _project(w, basis, m, overlaps):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
+def _add_overlaps(ws, basis, m, s, overlaps):  # pragma: no cover - compiled
+    """overlaps[k] += <basis[k], w> over the stretch ``ws`` of w that starts at entry s."""
+    for k in range(m + 1):
+        bs, acc = basis[k, s:s + ws.size], overlaps[k] * 0
+        for i in range(ws.size):
+            acc += np.conj(bs[i]) * ws[i]
+        overlaps[k] += acc
+
+
+@njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
 def _overlaps(w, basis, m, overlaps):  # pragma: no cover - compiled
     """overlaps[k] = <basis[k], w> for k <= m, w read once."""
     overlaps[:] = 0
     for s in range(0, w.size, CHUNK):
-        ws = w[s:s + CHUNK]
-        for k in range(m + 1):
-            bs, acc = basis[k, s:s + CHUNK], overlaps[k] * 0
-            for i in range(ws.size):
-                acc += np.conj(bs[i]) * ws[i]
-            overlaps[k] += acc
+        _add_overlaps(w[s:s + CHUNK], basis, m, s, overlaps)
 
 
 @njit(cache=True, nogil=True, fastmath={"reassoc", "contract"})
@@ -89,11 +94,7 @@ def _extend(w, basis, m, beta):  # pragma: no cover - compiled
             x = ws[i] - alpha * vm[i] - beta * vp[i]
             ws[i] = x
             norm2 += x.real * x.real + x.imag * x.imag
-        for k in range(m + 1):
-            bs, acc = basis[k, s:s + CHUNK], overlaps[0] * 0
-            for i in range(ws.size):
-                acc += np.conj(bs[i]) * ws[i]
-            overlaps[k] += acc
+        _add_overlaps(ws, basis, m, s, overlaps)
     after2 = _project(w, basis, m, overlaps)
     if after2 < norm2 / 2.0:
         _overlaps(w, basis, m, overlaps)
