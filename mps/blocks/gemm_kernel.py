@@ -19,8 +19,9 @@ def group_products(pa, pb, pc, groups, loop_limit):  # pragma: no cover - compil
     (all three of one dtype).
 
     Groups of at most ``loop_limit`` multiply-adds are a plain loop (a BLAS call does not pay off
-    for a 10 x 10 x 10 product), the others one BLAS call each from here (``np.dot``, scipy's
-    BLAS): from Python every product would cost a few microseconds of slicing and dispatch.
+    below about 7 x 7 x 7, :data:`mps.blocks.contract.SMALL_GEMM`), the others one BLAS call each
+    from here (``np.dot``, scipy's BLAS): from Python every product would cost a few microseconds
+    of slicing and dispatch.
     """
     for g in range(groups.shape[0]):
         nr, nm, nc, sa, sb, sc = groups[g]
