@@ -209,7 +209,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
         lo, hi = first_entry[b], end_entry[b]
         if lo == hi:
             continue
-        weights(x_shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
+        weights(x_shapes, b, src_rows, src_cols, max(src_ld[b], 1), ws)
         base = 0
         for i in range(nf):
             base += x_keys[b, free_x[i]] * o_radix[i]
@@ -220,7 +220,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
             bo = np.searchsorted(o_codes, code)
             if bo >= len(o_codes) or o_codes[bo] != code or dst_dest[bo] < 0:
                 continue
-            weights(o_shapes[bo], dst_rows, dst_cols, dst_ld[bo], wd)
+            weights(o_shapes, bo, dst_rows, dst_cols, dst_ld[bo], wd)
             s = src_dest[b]
             for k in range(nk):
                 s += e_offs[e, con_c[k]] * ws[con_x[k]]
@@ -282,7 +282,7 @@ def _unreached(starts, nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # p
     for bo in range(nb):
         if dst_dest[bo] < 0:
             continue
-        weights(o_shapes[bo], dst_rows, dst_cols, dst_ld[bo], wd)
+        weights(o_shapes, bo, dst_rows, dst_cols, dst_ld[bo], wd)
         count = 1
         for a in range(nf, r):
             count *= o_shapes[bo, a]

@@ -17,14 +17,15 @@ import numpy as np
 from numba import njit
 
 
-@njit(cache=True, nogil=True)
-def _axis_sums(shape, strides, axes, out):  # pragma: no cover - compiled
-    """out[i] = sum_j digit_j(i) strides[axes[j]] over the C-order multi-index of shape[axes]."""
-    n = 1
-    for a in axes:
-        n *= shape[a]
+@njit(cache=True, nogil=True, inline="always")
+def _axis_sums(shapes, b, strides, axes, digits, out):  # pragma: no cover - compiled
+    """out[i] = sum_j digit_j(i) strides[axes[j]] over the C-order multi-index of block b's
+    shape on ``axes`` (``digits``: scratch of at least len(axes) entries)."""
     m = len(axes)
-    digits = np.zeros(m, np.int64)
+    n = 1
+    for j in range(m):
+        n *= shapes[b, axes[j]]
+        digits[j] = 0
     acc = 0
     for i in range(n):
         out[i] = acc
@@ -33,7 +34,7 @@ def _axis_sums(shape, strides, axes, out):  # pragma: no cover - compiled
             a = axes[j]
             digits[j] += 1
             acc += strides[a]
-            if digits[j] < shape[a]:
+            if digits[j] < shapes[b, a]:
                 break
             acc -= digits[j] * strides[a]
             digits[j] = 0
@@ -41,15 +42,19 @@ def _axis_sums(shape, strides, axes, out):  # pragma: no cover - compiled
     return n
 
 
-@njit(cache=True, nogil=True)
-def _block_sums(shape, row_axes, col_axes, strides, rsum, csum):  # pragma: no cover - compiled
-    """C-order strides of one block, then the offsets of its rows and columns (see
-    :func:`_axis_sums`); returns (number of rows, number of columns)."""
+@njit(cache=True, nogil=True, inline="always")
+def _block_sums(shapes, b, row_axes, col_axes, strides, digits, rsum, csum):  # pragma: no cover - compiled
+    """C-order strides of block b, then the offsets of its rows and columns (see
+    :func:`_axis_sums`); returns (number of rows, number of columns). The block comes as
+    (shapes, b), the scratch from the caller, and both helpers are inlined: a row view, a fresh
+    array or a compiled call per block each take atomic reference counts, which cost as much as
+    moving a small block (measured: one bond-32 two-site application 33 -> 25 us)."""
     s = 1
-    for a in range(len(shape) - 1, -1, -1):
+    for a in range(shapes.shape[1] - 1, -1, -1):
         strides[a] = s
-        s *= shape[a]
-    return _axis_sums(shape, strides, row_axes, rsum), _axis_sums(shape, strides, col_axes, csum)
+        s *= shapes[b, a]
+    return (_axis_sums(shapes, b, strides, row_axes, digits, rsum),
+            _axis_sums(shapes, b, strides, col_axes, digits, csum))
 
 
 @njit(cache=True, nogil=True)
@@ -86,10 +91,11 @@ def block_map(shapes, offsets, row_axes, col_axes, dest, ld, size, scatter):  # 
     rsum = np.empty(big, np.int64)
     csum = np.empty(big, np.int64)
     strides = np.empty(r, np.int64)
+    digits = np.empty(r, np.int64)
     for b in range(nb):
         if dest[b] < 0:
             continue
-        nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
+        nr, nc = _block_sums(shapes, b, row_axes, col_axes, strides, digits, rsum, csum)
         for i in range(nr):
             src = offsets[b] + rsum[i]
             dst = dest[b] + i * ld[b]
@@ -153,10 +159,11 @@ def pack_into(data, shapes, offsets, row_axes, col_axes, dest, ld, out):  # prag
     rsum = np.empty(big, np.int64)
     csum = np.empty(big, np.int64)
     strides = np.empty(r, np.int64)
+    digits = np.empty(r, np.int64)
     for b in range(nb):
         if dest[b] < 0:
             continue
-        nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
+        nr, nc = _block_sums(shapes, b, row_axes, col_axes, strides, digits, rsum, csum)
         run = _is_run(csum, nc)
         for i in range(nr):
             src = offsets[b] + rsum[i]
@@ -181,12 +188,13 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
     rsum = np.empty(big, np.int64)
     csum = np.empty(big, np.int64)
     strides = np.empty(r, np.int64)
+    digits = np.empty(r, np.int64)
     for b in range(nb):
         if dest[b] < 0:
             for p in range(offsets[b], offsets[b + 1]):
                 out[p] = 0
             continue
-        nr, nc = _block_sums(shapes[b], row_axes, col_axes, strides, rsum, csum)
+        nr, nc = _block_sums(shapes, b, row_axes, col_axes, strides, digits, rsum, csum)
         run = _is_run(csum, nc)
         for i in range(nr):
             src = offsets[b] + rsum[i]
@@ -201,18 +209,19 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
     return out
 
 
-@njit(cache=True, nogil=True)
-def weights(shape, rows, cols, ld, out):  # pragma: no cover - compiled
-    """out[a]: how far one step along axis a moves in a packed group matrix with ``ld`` columns
-    whose rows run over legs ``rows`` and columns over legs ``cols`` (C order)."""
+@njit(cache=True, nogil=True, inline="always")
+def weights(shapes, b, rows, cols, ld, out):  # pragma: no cover - compiled
+    """out[a]: how far one step along axis a of block b (shape ``shapes[b]``) moves in a packed
+    group matrix with ``ld`` columns whose rows run over legs ``rows`` and columns over legs
+    ``cols`` (C order)."""
     s = 1
     for j in range(len(cols) - 1, -1, -1):
         out[cols[j]] = s
-        s *= shape[cols[j]]
+        s *= shapes[b, cols[j]]
     s = ld
     for j in range(len(rows) - 1, -1, -1):
         out[rows[j]] = s
-        s *= shape[rows[j]]
+        s *= shapes[b, rows[j]]
 
 
 @njit(cache=True, nogil=True)
@@ -229,8 +238,8 @@ def repack_blocks(src, shapes, src_rows, src_cols, src_dest, src_ld,
     for b in range(nb):
         if dst_dest[b] < 0:
             continue
-        weights(shapes[b], dst_rows, dst_cols, dst_ld[b], wd)
-        weights(shapes[b], src_rows, src_cols, max(src_ld[b], 1), ws)
+        weights(shapes, b, dst_rows, dst_cols, dst_ld[b], wd)
+        weights(shapes, b, src_rows, src_cols, max(src_ld[b], 1), ws)
         zero = src_dest[b] < 0
         ps = src_dest[b]
         pd = dst_dest[b]
