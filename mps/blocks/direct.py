@@ -26,6 +26,7 @@ from numba import njit
 
 from mps.blocks.charges import Leg, mixed_radix
 from mps.blocks.kernels import weights
+from mps.blocks.sector_kernel import bisect_left
 from mps.blocks.tensor import BlockTensor
 
 DIRECT_REUSE = 4.0
@@ -217,7 +218,7 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
             code = base
             for g in range(ng):
                 code += e_keys[e, free_c[g]] * o_radix[nf + g]
-            bo = np.searchsorted(o_codes, code)
+            bo = bisect_left(o_codes, code)
             if bo >= len(o_codes) or o_codes[bo] != code or dst_dest[bo] < 0:
                 continue
             weights(o_shapes, bo, dst_rows, dst_cols, dst_ld[bo], wd)
@@ -252,11 +253,9 @@ def direct_tasks(x_keys, x_shapes, src_rows, src_cols, src_dest, src_ld, free_x,
         i = order[n]
         tasks[n, 0], tasks[n, 1] = src[i], dst[i]
         tasks[n, 2] = 1 if n == 0 or dst[i] != dst[order[n - 1]] else 0
-        tasks[n, 3:3 + nf] = extent[i]
-        tasks[n, 3 + nf:3 + 2 * nf] = src_step[i]
-        tasks[n, 3 + 2 * nf:] = dst_step[i]
         size = 2
-        for a in range(nf):
+        for a in range(nf):     # entry by entry: slices of rows would take reference counts
+            tasks[n, 3 + a], tasks[n, 3 + nf + a], tasks[n, 3 + 2 * nf + a] = extent[i, a], src_step[i, a], dst_step[i, a]
             size *= extent[i, a]
         flops += size
     zeros = _unreached(dst[by_dst], nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld)
@@ -295,7 +294,7 @@ def _unreached(starts, nf, o_shapes, dst_rows, dst_cols, dst_dest, dst_ld):  # p
             for a in range(r - 1, nf - 1, -1):
                 d += (rest % o_shapes[bo, a]) * wd[a]
                 rest //= o_shapes[bo, a]
-            pos = np.searchsorted(starts, d)
+            pos = bisect_left(starts, d)
             if pos < len(starts) and starts[pos] == d:
                 continue
             out[n, 0] = d

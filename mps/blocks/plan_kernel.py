@@ -16,7 +16,7 @@ import numpy as np
 from numba import njit
 
 from mps.blocks.kernels import covered_entries
-from mps.blocks.sector_kernel import allowed_blocks, fused_codes, packed_bound
+from mps.blocks.sector_kernel import allowed_blocks, bisect_left, fused_codes, packed_bound
 
 
 @njit(cache=True, nogil=True)
@@ -30,7 +30,7 @@ def _locate(keys, axes, fusion):  # pragma: no cover - compiled
         code = 0
         for j in range(len(axes)):
             code += keys[b, axes[j]] * radix[j]
-        pos = np.searchsorted(codes, code)
+        pos = bisect_left(codes, code)
         if pos < len(codes) and codes[pos] == code:
             sec[b] = sector[pos]
             off[b] = offset[pos]

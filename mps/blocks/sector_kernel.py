@@ -26,6 +26,21 @@ def charge_keys(charges, shift, bias):  # pragma: no cover - compiled
 
 
 @njit(cache=True, nogil=True, inline="always")
+def bisect_left(a, x):  # pragma: no cover - compiled
+    """First position in sorted ``a`` whose value is not below ``x`` (``np.searchsorted`` for
+    one value). Inlined into the loops that look up one value per block: a call of the numpy
+    overload per lookup passes its array with atomic reference counts."""
+    lo, hi = 0, len(a)
+    while lo < hi:
+        mid = (lo + hi) >> 1
+        if a[mid] < x:
+            lo = mid + 1
+        else:
+            hi = mid
+    return lo
+
+
+@njit(cache=True, nogil=True, inline="always")
 def packed_bound(charges, starts):  # pragma: no cover - compiled
     """Largest |combined charge| a combination of sectors of packed legs can reach: the sum over
     legs of their largest |charge component| (:func:`mps.blocks.charges.charge_bound`)."""
@@ -83,7 +98,7 @@ def allowed_blocks(charges, sizes, starts, flows, target, shift, bias):  # pragm
         key = 0
         for c in range(k):
             key = (key << shift) | (need[0, c] + bias)
-        pos = np.searchsorted(last_keys, key)
+        pos = bisect_left(last_keys, key)
         if pos < len(last_keys) and last_keys[pos] == key:
             digits[r - 1] = pos
             ok = True
