@@ -67,12 +67,14 @@ def _is_run(csum, nc):  # pragma: no cover - compiled
     return True
 
 
-@njit(cache=True, nogil=True)
-def _largest_block(offsets):  # pragma: no cover - compiled
+@njit(cache=True, nogil=True, inline="always")
+def _block_scratch(offsets, r):  # pragma: no cover - compiled
+    """Scratch for :func:`_block_sums` over all blocks: row and column offsets (as long as the
+    largest block), C-order strides and odometer digits (one per leg), allocated once per call."""
     big = 1
     for b in range(len(offsets) - 1):
         big = max(big, offsets[b + 1] - offsets[b])
-    return big
+    return np.empty(big, np.int64), np.empty(big, np.int64), np.empty(r, np.int64), np.empty(r, np.int64)
 
 
 @njit(cache=True, nogil=True)
@@ -87,11 +89,7 @@ def block_map(shapes, offsets, row_axes, col_axes, dest, ld, size, scatter):  # 
     """
     nb, r = shapes.shape
     out = np.empty(size, np.int64) if covered_entries(shapes, dest) == size else np.full(size, -1, np.int64)
-    big = _largest_block(offsets)
-    rsum = np.empty(big, np.int64)
-    csum = np.empty(big, np.int64)
-    strides = np.empty(r, np.int64)
-    digits = np.empty(r, np.int64)
+    rsum, csum, strides, digits = _block_scratch(offsets, r)
     for b in range(nb):
         if dest[b] < 0:
             continue
@@ -155,11 +153,7 @@ def pack_blocks(data, shapes, offsets, row_axes, col_axes, dest, ld, size):  # p
 def pack_into(data, shapes, offsets, row_axes, col_axes, dest, ld, out):  # pragma: no cover
     """:func:`pack_blocks` into a given buffer (of any dtype ``data`` converts to)."""
     nb, r = shapes.shape
-    big = _largest_block(offsets)
-    rsum = np.empty(big, np.int64)
-    csum = np.empty(big, np.int64)
-    strides = np.empty(r, np.int64)
-    digits = np.empty(r, np.int64)
+    rsum, csum, strides, digits = _block_scratch(offsets, r)
     for b in range(nb):
         if dest[b] < 0:
             continue
@@ -184,11 +178,7 @@ def unpack_blocks(packed, shapes, offsets, row_axes, col_axes, dest, ld):  # pra
     (no group produced them) are zero."""
     nb, r = shapes.shape
     out = np.empty(offsets[nb], packed.dtype)
-    big = _largest_block(offsets)
-    rsum = np.empty(big, np.int64)
-    csum = np.empty(big, np.int64)
-    strides = np.empty(r, np.int64)
-    digits = np.empty(r, np.int64)
+    rsum, csum, strides, digits = _block_scratch(offsets, r)
     for b in range(nb):
         if dest[b] < 0:
             for p in range(offsets[b], offsets[b + 1]):
